@@ -1,0 +1,3 @@
+"""labelq: choose which candidates to label next with a Gaussian-process classifier."""
+
+__version__ = "0.1.0"

@@ -1,0 +1,5 @@
+"""`python -m labelq` runs the command line."""
+
+from labelq.cli.app import main
+
+main()

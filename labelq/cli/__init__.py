@@ -1,0 +1,1 @@
+"""The `labelq` command line (Typer + Rich): parse, call one library function, render."""

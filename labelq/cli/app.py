@@ -1,0 +1,366 @@
+"""The `labelq` command line: each command parses, calls one library function, renders."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from labelq.acquire import STRATEGIES
+from labelq.errors import LabelqError
+from labelq.cli import render
+from labelq.cli.options import (ByOption, DbOption, JsonOption, StrategyOption, db_path, open_store,
+                                user_errors)
+from labelq.loop import actions, maintain, reports
+
+app = typer.Typer(
+    name="labelq",
+    help="Label the candidates that teach a Gaussian-process classifier the most.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    rich_markup_mode=None,
+)
+
+
+class BadOption(LabelqError):
+    """An option's value is not one the command accepts."""
+
+
+def check_strategy(strategy: Optional[str]) -> Optional[str]:
+    """The strategy name, or a one-line error naming the accepted ones."""
+    if strategy is not None and strategy not in STRATEGIES:
+        raise BadOption(f"unknown strategy {strategy!r}; choose one of {', '.join(STRATEGIES)}")
+    return strategy
+
+
+def person(by: Optional[str]) -> str:
+    return by or actions.default_person()
+
+
+@app.command()
+@user_errors
+def init(
+    classes: Annotated[str, typer.Option("--classes", help="Comma-separated class names, e.g. export,local,juice.")],
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Create a new store for the given classes."""
+    names = [c.strip() for c in classes.split(",")]
+    store = actions.create_store(db_path(db), names)
+    with store:
+        if json:
+            render.print_json({"db": str(store.path), "classes": store.classes})
+        else:
+            render.console().print(f"Created {store.path} with classes {', '.join(store.classes)}.")
+
+
+@app.command("import")
+@user_errors
+def import_(
+    file: Annotated[Path, typer.Argument(help="CSV file with a header row.", show_default=False)],
+    id_column: Annotated[str, typer.Option("--id", help="Column holding each candidate's unique key.")],
+    features: Annotated[Optional[str], typer.Option(
+        "--features", help="Comma-separated feature columns (default: every numeric column).",
+        show_default=False)] = None,
+    labels: Annotated[Optional[str], typer.Option(
+        "--labels", help="Column of labels already known (empty cell = unlabelled).",
+        show_default=False)] = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Add candidates from a CSV file; other text columns are kept as metadata."""
+    feature_list = [f.strip() for f in features.split(",")] if features else None
+    with open_store(db) as store, render.progress_bar("importing") as update:
+        result = actions.import_candidates(
+            store, file, id_column, features=feature_list, labels_column=labels,
+            progress=lambda rows, done, total: update(done, total, f"importing ({rows:,} rows)"))
+        counts = store.counts()
+    if json:
+        render.print_json({"added": result.candidates, "labels": result.labels,
+                           "features": result.features, "metadata": result.metadata,
+                           "candidates": counts["candidates"]})
+        return
+    con = render.console()
+    con.print(f"Added {result.candidates:,} candidates with {len(result.features)} features "
+              f"({', '.join(result.features)}); the pool now holds {counts['candidates']:,}.")
+    if result.labels:
+        con.print(f"Recorded {result.labels:,} labels from column {labels!r}.")
+    if result.metadata:
+        con.print(f"Kept as metadata: {', '.join(result.metadata)}.")
+
+
+@app.command("next")
+@user_errors
+def next_(
+    n: Annotated[int, typer.Option("-n", help="How many candidates to show.", min=1)] = 10,
+    strategy: StrategyOption = None,
+    by: ByOption = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Show the queue: the candidates whose labels would teach the model most."""
+    with open_store(db) as store, render.progress_bar("refitting") as update:
+        queue = actions.next_queue(store, n, check_strategy(strategy), holder=person(by),
+                                   progress=lambda stage, d, t: update(d, t, stage))
+        render_queue(store, queue, json)
+
+
+def render_queue(store, queue, json: bool) -> None:
+    """Print a queue as JSON or as a heading and a table."""
+    classes = store.classes
+    if json:
+        render.print_json({"queue": render.queue_rows_json(queue, classes),
+                           "strategy": queue.strategy, "cold_start": queue.cold_start,
+                           "fit": queue.fit.id})
+        return
+    con = render.console()
+    if not queue.rows:
+        con.print("Every candidate is labelled: the queue is empty.")
+        return
+    con.print(render.queue_heading(queue))
+    con.print(render.queue_table(queue, classes, actions.meta_columns(queue.rows)))
+
+
+@app.command()
+@user_errors
+def show(
+    key: Annotated[str, typer.Argument(help="The candidate's key.", show_default=False)],
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """One candidate: metadata, features, probability per class with interval, nearest labelled."""
+    with open_store(db) as store:
+        view = reports.candidate_view(store, key)
+    if json:
+        render.print_json(view)
+        return
+    con = render.console()
+    status = (f"labelled {view['label']}" if view["label"] else
+              "skipped" if view["skipped"] else f"queue rank {view['rank']}" if view["rank"] else
+              "unranked")
+    con.print(f"[bold]{view['key']}[/bold] ({status})")
+    con.print(render.key_value_table(list(view["meta"].items())
+                                     + [(k, render.fmt_num(v, 4)) for k, v in view["features"].items()]))
+    if view["p"]:
+        con.print(render.probability_table(view))
+    if view["nearest"]:
+        con.print(render.nearest_table(view["nearest"]))
+
+
+LabelNote = Annotated[Optional[str], typer.Option("--note", help="A note kept with the label.",
+                                                  show_default=False)]
+
+
+@app.command()
+@user_errors
+def label(
+    key: Annotated[str, typer.Argument(help="The candidate's key.", show_default=False)],
+    class_: Annotated[str, typer.Argument(metavar="CLASS", help="The class you give it.",
+                                          show_default=False)],
+    note: LabelNote = None,
+    by: ByOption = None,
+    relabel: Annotated[bool, typer.Option("--relabel", help="Replace an existing label.")] = False,
+    strategy: StrategyOption = None,
+    n: Annotated[int, typer.Option("-n", help="How many of the new queue to show.", min=1)] = 5,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Record a label, refit, re-rank and print the new head of the queue."""
+    with open_store(db) as store, render.progress_bar("refitting") as update:
+        who = person(by)
+        actions.label(store, key, class_, who, note=note, relabel=relabel,
+                      strategy=check_strategy(strategy),
+                      progress=lambda stage, d, t: update(d, t, stage))
+        queue = actions.next_queue(store, n, strategy, holder=who)
+        if not json:
+            render.console().print(f"Labelled {key} as {class_}.")
+        render_queue(store, queue, json)
+
+
+@app.command()
+@user_errors
+def skip(
+    key: Annotated[str, typer.Argument(help="The candidate's key.", show_default=False)],
+    by: ByOption = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Skip a candidate: it sinks to the bottom of the queue until labelled or the skip is undone."""
+    with open_store(db) as store, render.progress_bar("re-ranking") as update:
+        actions.skip(store, key, person(by), progress=lambda stage, d, t: update(d, t, stage))
+    if json:
+        render.print_json({"skipped": key})
+    else:
+        render.console().print(f"Skipped {key}; it now waits at the bottom of the queue.")
+
+
+@app.command()
+@user_errors
+def undo(
+    by: ByOption = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Take back the most recent label or skip (a retraction is recorded; nothing is deleted)."""
+    with open_store(db) as store, render.progress_bar("refitting") as update:
+        step = actions.undo(store, person(by), progress=lambda stage, d, t: update(d, t, stage))
+    event = step.event
+    if json:
+        render.print_json({"undone": event.kind, "key": event.key, "class": event.class_})
+    elif event.kind == "label":
+        render.console().print(f"Took back the label {event.class_} on {event.key}.")
+    else:
+        render.console().print(f"Took back the skip of {event.key}.")
+
+
+@app.command()
+@user_errors
+def status(
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Counts, the last fit, and advice on whether more labels are paying off."""
+    with open_store(db) as store:
+        doc = reports.status(store)
+    if json:
+        render.print_json(doc)
+        return
+    render.print_status(render.console(), doc)
+
+
+@app.command()
+@user_errors
+def history(
+    plot: Annotated[Optional[Path], typer.Option("--plot", help="Also write the chart as a PNG.",
+                                                 show_default=False)] = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """How the pool's uncertainty changed, fit by fit, as a table and a chart."""
+    with open_store(db) as store:
+        rows = reports.history(store)
+    if plot is not None:
+        reports.history_png(rows, plot)
+    if json:
+        render.print_json(rows)
+        return
+    render.print_history(render.console(), rows, reports.history_chart(rows))
+    if plot is not None:
+        render.console().print(f"Wrote {plot}.")
+
+
+@app.command()
+@user_errors
+def export(
+    what: Annotated[str, typer.Argument(help="labels, predictions or model.", show_default=False)],
+    output: Annotated[Optional[Path], typer.Option("-o", "--output", help="Write to this file instead of stdout.", show_default=False)] = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Export the labels, the predictions for every candidate, or the fitted model (JSON)."""
+    with open_store(db) as store:
+        text = reports.export(store, what, as_json=json)
+    if output is None:
+        typer.echo(text, nl=False)
+    else:
+        reports.write_text(output, text)
+        render.err_console().print(f"Wrote {output}.")
+    if what == "predictions":
+        render.err_console().print(render.CAUTION)
+
+
+@app.command()
+@user_errors
+def session(
+    strategy: StrategyOption = None,
+    by: ByOption = None,
+    db: DbOption = None,
+):
+    """Label at the prompt: shows the next candidate and asks for its class."""
+    from labelq.cli.sitting import run_session
+
+    with open_store(db) as store:
+        run_session(store, person(by), check_strategy(strategy))
+
+
+@app.command()
+@user_errors
+def simulate(
+    file: Annotated[Path, typer.Argument(help="A fully labelled CSV.", show_default=False)],
+    id_column: Annotated[str, typer.Option("--id", help="Column holding each row's key.")],
+    truth: Annotated[str, typer.Option("--truth", help="Column holding the true class.")],
+    strategies: Annotated[str, typer.Option("--strategies", help="Comma-separated strategies to compare.")] = ",".join(STRATEGIES),
+    budget: Annotated[int, typer.Option("--budget", help="Labels to query after the initial ones.", min=1)] = 60,
+    seeds: Annotated[int, typer.Option("--seeds", help="Replays per strategy (seeds 0..K-1).", min=1)] = 5,
+    initial: Annotated[int, typer.Option("--initial", help="Labels drawn at random before querying.", min=1)] = 4,
+    features: Annotated[Optional[str], typer.Option("--features", help="Comma-separated feature columns (default: every numeric column).", show_default=False)] = None,
+    plot: Annotated[Optional[Path], typer.Option("--plot", help="Also write the learning curves as a PNG.", show_default=False)] = None,
+    json: JsonOption = False,
+):
+    """Replay strategies on a fully labelled CSV and compare their learning curves."""
+    names = [check_strategy(s.strip()) for s in strategies.split(",") if s.strip()]
+    feature_list = [f.strip() for f in features.split(",")] if features else None
+    with render.progress_bar("replaying") as update:
+        result = reports.simulate_csv(file, id_column, truth, names, budget, seeds, initial,
+                                         features=feature_list, progress=update)
+    if plot is not None:
+        reports.simulate_png(result, plot)
+    if json:
+        render.print_json(result)
+        return
+    render.print_simulation(render.console(), result, reports.simulation_chart(result))
+    if plot is not None:
+        render.console().print(f"Wrote {plot}.")
+
+
+@app.command()
+@user_errors
+def check(
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Verify a store: schema revision, orphan rows, scores of the current fit, label events."""
+    with open_store(db) as store:
+        problems = maintain.check(store)
+    if json:
+        render.print_json({"ok": not problems, "problems": problems})
+    elif problems:
+        for p in problems:
+            render.console().print(f"problem: {p}")
+    else:
+        render.console().print("The store is consistent.")
+    if problems:
+        raise typer.Exit(1)
+
+
+@app.command()
+@user_errors
+def rebuild(
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Recompute every fit, score and snapshot from the label events alone."""
+    with open_store(db) as store, render.progress_bar("rebuilding") as update:
+        n = maintain.rebuild(store, progress=lambda stage, d, t: update(d, t, stage))
+    if json:
+        render.print_json({"fits": n})
+    else:
+        render.console().print(f"Rebuilt {n} fits from the label events.")
+
+
+@app.command()
+@user_errors
+def demo(
+    dir: Annotated[Path, typer.Option("--dir", help="Folder for the demo files and store.")] = Path("."),
+):
+    """Build the orchard demo store, label a few apples and show the queue."""
+    from labelq.cli.walkthrough import run_demo
+
+    run_demo(dir)
+
+
+def main() -> None:
+    """Console-script entry point."""
+    app()

@@ -1,0 +1,216 @@
+"""Tables and lines for people, JSON documents for scripts. No store or model work happens here."""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from contextlib import contextmanager
+
+from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.table import Table
+
+CAUTION = ("Probabilities are the model's estimates from the labels given so far. Validate them "
+           "before relying on them for decisions that affect health or food safety, and follow "
+           "local rules and licensed practice.")
+
+SCORE_NAMES = {"entropy": "entropy (bits)", "margin": "margin (sd)", "bald": "BALD (bits)",
+               "random": "random draw", "cold-start": "spread pick"}
+
+
+def console() -> Console:
+    """The console for results (stdout); Rich honours NO_COLOR and plain pipes."""
+    return Console(highlight=False, soft_wrap=False)
+
+
+def err_console() -> Console:
+    """The console for progress and notes (stderr)."""
+    return Console(stderr=True, highlight=False)
+
+
+def print_json(doc) -> None:
+    """One JSON document on stdout."""
+    sys.stdout.write(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
+
+
+def fmt_p(p) -> str:
+    """A probability for a table: two decimals, '<0.01'/'>0.99' at the ends."""
+    if p is None or (isinstance(p, float) and math.isnan(p)):
+        return "-"
+    if p < 0.005:
+        return "<0.01"
+    if p > 0.995:
+        return ">0.99"
+    return f"{p:.2f}"
+
+
+def fmt_num(x, digits=3) -> str:
+    """A number for a table, '-' when missing."""
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "-"
+    return f"{x:.{digits}f}"
+
+
+def round_p(p) -> float:
+    """A probability for JSON: four decimals."""
+    return round(float(p), 4)
+
+
+def queue_rows_json(queue, classes) -> list[dict]:
+    """The `next --json` rows of the contract in DESIGN.md."""
+    out = []
+    for row in queue.rows:
+        out.append({
+            "rank": int(row.rank),
+            "key": row.key,
+            "predicted": classes[int(row.predicted)],
+            "p": {c: round_p(p) for c, p in zip(classes, row.probabilities)},
+            "score": round(float(row.score), 4),
+            "strategy": queue.strategy,
+            "meta": row.meta,
+        })
+    return out
+
+
+def queue_heading(queue) -> str:
+    """One line above the queue saying how it was ranked."""
+    fit = queue.fit
+    if queue.cold_start:
+        return ("Cold start: fewer than two classes have labels, so these candidates are spread "
+                "out across the feature space rather than ranked by the model.")
+    return (f"Ranked by {queue.strategy} after fit {fit.id} on {fit.n_labels} labels; the first "
+            f"rows form a spread-out batch.")
+
+
+def queue_table(queue, classes, meta_columns) -> Table:
+    """The queue as an aligned table: rank, key, predicted class, p, score, metadata."""
+    table = Table(show_edge=False, pad_edge=False, header_style="bold")
+    table.add_column("#", justify="right")
+    table.add_column("key", overflow="fold")
+    table.add_column("predicted")
+    table.add_column("p", justify="right")
+    table.add_column(SCORE_NAMES.get(queue.strategy, "score"), justify="right")
+    for name in meta_columns:
+        table.add_column(name, overflow="fold")
+    for row in queue.rows:
+        claimed = "" if not getattr(row, "skipped", False) else " (skipped)"
+        table.add_row(str(row.rank), row.key + claimed, classes[int(row.predicted)],
+                      fmt_p(row.p_top), fmt_num(row.score),
+                      *[str(row.meta.get(m, "")) for m in meta_columns])
+    return table
+
+
+def key_value_table(pairs) -> Table:
+    """Two aligned columns of names and values."""
+    table = Table(show_header=False, show_edge=False, pad_edge=False, box=None)
+    table.add_column(style="bold")
+    table.add_column()
+    for k, v in pairs:
+        table.add_row(str(k), str(v))
+    return table
+
+
+@contextmanager
+def progress_bar(description: str, enabled: bool = True):
+    """A Rich progress bar on stderr; yields ``update(done, total)``. Silent when not a terminal."""
+    con = err_console()
+    bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                   TimeElapsedColumn(), console=con, transient=True,
+                   disable=not (enabled and con.is_terminal))
+    with bar:
+        task = bar.add_task(description, total=None)
+
+        def update(done, total, label=None):
+            bar.update(task, completed=done, total=total or None,
+                       description=label or description)
+        yield update
+
+
+def probability_table(view) -> Table:
+    """Probability per class with its 5-95% interval, for `show`."""
+    table = Table(show_edge=False, pad_edge=False, header_style="bold")
+    table.add_column("class")
+    table.add_column("p", justify="right")
+    table.add_column("5-95% interval", justify="right")
+    for c, d in view["p"].items():
+        table.add_row(c, fmt_p(d["p"]), f"{fmt_p(d['low'])} - {fmt_p(d['high'])}")
+    return table
+
+
+def nearest_table(nearest) -> Table:
+    """The nearest labelled candidates in standardised feature space, for `show`."""
+    table = Table(show_edge=False, pad_edge=False, header_style="bold",
+                  title="nearest labelled", title_justify="left")
+    table.add_column("key")
+    table.add_column("class")
+    table.add_column("distance (sd)", justify="right")
+    for n in nearest:
+        table.add_row(n["key"], n["class"], fmt_num(n["distance"], 2))
+    return table
+
+
+def print_status(con: Console, doc) -> None:
+    """The `status` screen: counts, labels per class, last fit, snapshot, advice, caution."""
+    con.print(f"[bold]{doc['db']}[/bold]: {doc['candidates']:,} candidates, "
+              f"{doc['labelled']:,} labelled, {doc['skipped']:,} skipped")
+    con.print(key_value_table([(f"labels {c}", n) for c, n in doc["classes"].items()]))
+    fit = doc["last_fit"]
+    if fit is None:
+        con.print("No fit yet.")
+    else:
+        lml = fit["log_marginal_likelihood"]
+        con.print(f"Last fit {fit['fit']} on {fit['n_labels']} labels at {fit['at']} "
+                  f"({fit['seconds']:.2f} s"
+                  + (f", log marginal likelihood {lml:.2f}" if lml is not None else "")
+                  + (", hyperparameters re-learnt" if fit["hyperparameters_relearnt"] else "")
+                  + ")" + (" - stale, refits on the next command" if doc["stale"] else ""))
+        for w in fit["warnings"] or []:
+            con.print(f"  note: {w}")
+    snap = doc["snapshot"]
+    if snap is not None:
+        kappa = snap["kappa"]
+        con.print(key_value_table([
+            ("mean entropy", f"{snap['mean_entropy']:.3f} bits"),
+            ("uncertain (top p < 0.8)", f"{snap['n_uncertain']:,}"),
+            ("expected accuracy", f"{snap['expected_accuracy']:.3f} (the model's own estimate)"),
+            ("agreement with previous fit", "-" if kappa is None else f"kappa {kappa:.3f}"),
+        ]))
+    con.print(f"[bold]Advice:[/bold] {doc['advice']['message']}")
+    con.print(CAUTION, style="dim")
+
+
+def print_history(con: Console, rows, chart: str) -> None:
+    """The `history` screen: one row per fit, then the chart."""
+    if not rows:
+        con.print("No fits yet: label a few candidates first.")
+        return
+    table = Table(show_edge=False, pad_edge=False, header_style="bold")
+    for name, justify in [("fit", "right"), ("session", "right"), ("labels", "right"),
+                          ("mean entropy", "right"), ("uncertain", "right"),
+                          ("exp. accuracy", "right"), ("kappa", "right"), ("at", "left")]:
+        table.add_column(name, justify=justify)
+    for r in rows:
+        table.add_row(str(r["fit"]), "-" if r["session"] is None else str(r["session"]),
+                      str(r["n_labels"]), fmt_num(r["mean_entropy"]), f"{r['n_uncertain']:,}",
+                      fmt_num(r["expected_accuracy"]), fmt_num(r["kappa"]), r["at"] or "-")
+    con.print(table)
+    con.print(chart)
+
+
+def print_simulation(con: Console, result, chart: str) -> None:
+    """The `simulate` screen: a summary per strategy, then the learning curves."""
+    table = Table(show_edge=False, pad_edge=False, header_style="bold")
+    for name, justify in [("strategy", "left"), ("final accuracy", "right"), ("sd", "right"),
+                          ("labels to 95%", "right"), ("labels to 99%", "right"),
+                          ("area under curve", "right")]:
+        table.add_column(name, justify=justify)
+    for name, s in result["strategies"].items():
+        table.add_row(name, fmt_num(s["accuracy_mean"][-1]), fmt_num(s["accuracy_sd"][-1]),
+                      "-" if s["labels_to_95"] is None else str(s["labels_to_95"]),
+                      "-" if s["labels_to_99"] is None else str(s["labels_to_99"]),
+                      fmt_num(s["auc"]))
+    con.print(f"Full-pool accuracy (a model fitted on every row): "
+              f"{result['full_pool_accuracy']:.3f}")
+    con.print(table)
+    con.print(chart)

@@ -1,0 +1,145 @@
+"""Stationary covariance functions with ARD lengthscales and a signal variance.
+
+Hyperparameters are held and differentiated in log space: theta = [log l_1, ..., log l_p,
+log s2] with p = n_features (ARD) or p = 1 (one shared lengthscale).
+
+Both families depend on the scaled squared distance r^2 = sum_k D_k with
+D_k = (x_k - z_k)^2 / l_k^2, and their lengthscale derivatives have the form
+dK / d log l_k = Q * D_k (elementwise), so every contraction sum(G * dK / d log l_k) with a
+symmetric (n, n) matrix G reduces to 2 sum_i u_ik^2 (H 1)_i - 2 u_k^T H u_k with H = G * Q and
+u_k = x_k / l_k: one (n, n) product and an (n, n) x (n, p) GEMM, never an (n, n, p) tensor.
+"""
+import numpy as np
+
+_SQRT5 = np.sqrt(5.0)
+
+
+def _scaled_sqdist(U, V):
+    """Squared Euclidean distances between rows of U (n, p) and V (m, p), clipped at 0.
+
+    Built in place in one (n, m) buffer: the pool hot path is memory bound.
+    """
+    d2 = U @ V.T
+    d2 *= -2.0
+    d2 += (U * U).sum(1)[:, None]
+    d2 += (V * V).sum(1)[None, :]
+    return np.maximum(d2, 0.0, out=d2)
+
+
+class StationaryKernel:
+    """Base class: k(x, z) = s2 * g(r), r the lengthscale-scaled distance.
+
+    Subclasses give `_profile(r2)` -> g (may overwrite r2) and `_lengthscale_factor(r2)` -> Q / s2;
+    a subclass may override `__call__` with a faster equivalent.
+    """
+
+    name = ""
+
+    def __init__(self, lengthscale, signal_variance):
+        self.lengthscale = np.atleast_1d(np.asarray(lengthscale, dtype=float)).copy()
+        self.signal_variance = float(signal_variance)
+        if np.any(self.lengthscale <= 0) or not np.all(np.isfinite(self.lengthscale)):
+            raise ValueError(f"lengthscale must be positive and finite, got {self.lengthscale}")
+        if not (self.signal_variance > 0 and np.isfinite(self.signal_variance)):
+            raise ValueError(f"signal_variance must be positive, got {self.signal_variance!r}")
+
+    @property
+    def theta(self):
+        """Log hyperparameters [log l_1..log l_p, log s2], shape (p + 1,)."""
+        return np.append(np.log(self.lengthscale), np.log(self.signal_variance))
+
+    def with_theta(self, theta):
+        """A new kernel of the same family with log hyperparameters `theta`."""
+        theta = np.asarray(theta, dtype=float)
+        return type(self)(np.exp(theta[:-1]), np.exp(theta[-1]))
+
+    def _scale(self, X):
+        return np.asarray(X, dtype=float) / self.lengthscale
+
+    def __call__(self, X, Z=None):
+        """Covariance matrix K(X, Z), shape (n, m); K(X, X) when Z is None."""
+        U = self._scale(X)
+        V = U if Z is None else self._scale(Z)
+        K = self._profile(_scaled_sqdist(U, V))
+        K *= self.signal_variance
+        if Z is None:
+            np.fill_diagonal(K, self.signal_variance)
+        return K
+
+    def diag(self, X):
+        """Prior variances k(x, x) for the rows of X, shape (n,)."""
+        return np.full(np.asarray(X).shape[0], self.signal_variance)
+
+    def gradient_contractions(self, X, K, G):
+        """Return sum(G * dK / d theta_j) for every log hyperparameter, shape (p + 1,).
+
+        X : (n, d) inputs; K : (n, n) = self(X); G : (n, n) symmetric weight matrix.
+        With G = a a^T this gives a^T dK a, with G = R it gives tr(R dK) (GPML Alg. 5.1 line 8).
+        """
+        U = self._scale(X)
+        U = U - U.mean(0)  # translation invariant; centring limits cancellation
+        r2 = _scaled_sqdist(U, U)
+        H = G * (self.signal_variance * self._lengthscale_factor(r2))
+        per_dim = 2.0 * ((U * U) * H.sum(1)[:, None]).sum(0) - 2.0 * (U * (H @ U)).sum(0)
+        grad_ls = per_dim if self.lengthscale.size == U.shape[1] else np.array([per_dim.sum()])
+        return np.append(grad_ls, (G * K).sum())  # dK / d log s2 = K
+
+
+class SquaredExponential(StationaryKernel):
+    """k(x, z) = s2 exp(-r^2 / 2) (GPML eq. 5.1 with ARD lengthscales); Q = K."""
+
+    name = "se"
+
+    def __call__(self, X, Z=None):
+        """Covariance matrix K(X, Z), shape (n, m): s2 exp(u.v - |u|^2/2 - |v|^2/2) built in one
+        buffer (the pool hot path is memory bound)."""
+        U = self._scale(X)
+        V = U if Z is None else self._scale(Z)
+        K = U @ V.T
+        K -= (0.5 * (U * U).sum(1) - np.log(self.signal_variance))[:, None]
+        K -= 0.5 * (V * V).sum(1)[None, :]
+        np.minimum(K, np.log(self.signal_variance), out=K)
+        K = np.exp(K, out=K)
+        if Z is None:
+            np.fill_diagonal(K, self.signal_variance)
+        return K
+
+    def _profile(self, r2):
+        return np.exp(-0.5 * r2)
+
+    def _lengthscale_factor(self, r2):
+        return np.exp(-0.5 * r2)
+
+
+class Matern52(StationaryKernel):
+    """k(x, z) = s2 (1 + sqrt5 r + 5 r^2 / 3) exp(-sqrt5 r) (GPML eq. 4.17 with nu = 5/2).
+
+    dk/dr = -(5/3) s2 r (1 + sqrt5 r) exp(-sqrt5 r) and dr / d log l_k = -D_k / r, hence
+    dK / d log l_k = (5/3) s2 (1 + sqrt5 r) exp(-sqrt5 r) D_k, finite at r = 0.
+    """
+
+    name = "matern52"
+
+    def _profile(self, r2):
+        """(1 + t + t^2 / 3) exp(-t) with t = sqrt5 r, overwriting r2."""
+        t = np.sqrt(r2, out=r2)
+        t *= _SQRT5
+        decay = np.exp(-t)
+        t *= (t / 3.0 + 1.0)
+        t += 1.0
+        t *= decay
+        return t
+
+    def _lengthscale_factor(self, r2):
+        r = np.sqrt(r2)
+        return (5.0 / 3.0) * (1.0 + _SQRT5 * r) * np.exp(-_SQRT5 * r)
+
+
+KERNELS = {"se": SquaredExponential, "matern52": Matern52}
+
+
+def make_kernel(name, lengthscale, signal_variance):
+    """Build the kernel family `name` ("se" or "matern52"); ValueError for other names."""
+    if name not in KERNELS:
+        raise ValueError(f"kernel must be one of {sorted(KERNELS)}, got {name!r}")
+    return KERNELS[name](lengthscale, signal_variance)

@@ -1,0 +1,143 @@
+"""Multi-class Laplace approximation with the softmax likelihood.
+
+One latent GP per class with a shared kernel K (so the joint prior is block diagonal with C
+copies of K), fitted jointly: GPML Alg. 3.3 (mode, log marginal likelihood), Alg. 3.4
+(predictions) and the gradient of the approximate log marginal likelihood (GPML sec. 5.5.2,
+Alg. 5.1 extended to the softmax Hessian W = D - Pi Pi^T, GPML eq. 3.38).
+Targets are one-hot Y of shape (n, C); latent arrays are (n, C).
+"""
+import numpy as np
+from scipy.linalg import cho_solve, solve_triangular
+from scipy.special import logsumexp, softmax
+
+from labelq.gp.posterior import Posterior, robust_cholesky
+
+TOLERANCE = 1e-10
+MAX_ITER = 100
+MAX_HALVINGS = 30
+
+
+def _objective(A, F, Y):
+    """Psi = -a^T f / 2 + y^T f - sum_i log sum_c exp f_i^c (GPML Alg. 3.3 line 11 without the
+    determinant terms)."""
+    return -0.5 * (A * F).sum() + (Y * F).sum() - logsumexp(F, axis=1).sum()
+
+
+def _blocks(K, F):
+    """Per-class pieces of GPML Alg. 3.3 lines 4-8 at latent F.
+
+    Returns (Pi (n, C), E (C, n, n), M lower Cholesky of sum_c E_c, log|B|).
+    """
+    n, n_classes = F.shape
+    Pi = softmax(F, axis=1)
+    E = np.empty((n_classes, n, n))
+    log_det = 0.0
+    eye = np.eye(n)
+    for c in range(n_classes):
+        sD = np.sqrt(Pi[:, c])
+        L, _ = robust_cholesky(eye + sD[:, None] * K * sD[None, :])  # line 5
+        E[c] = sD[:, None] * cho_solve((L, True), np.diag(sD), check_finite=False)  # line 6
+        log_det += np.log(np.diag(L)).sum()  # line 7, z_c
+    M, _ = robust_cholesky(E.sum(0))  # line 8
+    log_det += np.log(np.diag(M)).sum()  # log|B| = sum_c z_c + sum_i log M_ii (line 11)
+    return Pi, E, M, log_det
+
+
+def _newton_target(K, Y, F):
+    """Newton target A_new (GPML Alg. 3.3 lines 9-12)."""
+    Pi, E, M, _ = _blocks(K, F)
+    B = Pi * F - Pi * (Pi * F).sum(1, keepdims=True) + Y - Pi  # line 9: (D - Pi Pi^T) f + y - pi
+    Cv = np.einsum("cij,jc->ic", E, K @ B)  # line 10: c = E K b
+    v = cho_solve((M, True), Cv.sum(1), check_finite=False)  # line 11: M^T \ (M \ R^T c)
+    return B - Cv + np.einsum("cij,j->ic", E, v)  # line 11: a = b - c + E R v
+
+
+def find_mode(K, Y, A0=None):
+    """Joint posterior mode by Newton's method with step halving; A0 optional warm start (n, C)
+    with F0 = K A0, replaced by zeros if its objective is worse. Returns (A, n_iter, warnings)."""
+    A = np.zeros(Y.shape)
+    F = np.zeros(Y.shape)
+    psi = _objective(A, F, Y)
+    if A0 is not None:
+        F0 = K @ A0
+        psi0 = _objective(A0, F0, Y)
+        if psi0 > psi:
+            A, F, psi = A0.copy(), F0, psi0
+    for it in range(1, MAX_ITER + 1):
+        step = _newton_target(K, Y, F) - A
+        t = 1.0
+        for _ in range(MAX_HALVINGS):
+            A_new = A + t * step
+            F_new = K @ A_new  # line 12
+            psi_new = _objective(A_new, F_new, Y)
+            if psi_new >= psi - 1e-12 * abs(psi):
+                break
+            t *= 0.5
+        improvement = psi_new - psi
+        A, F, psi = A_new, F_new, psi_new
+        if improvement < TOLERANCE * max(1.0, abs(psi)) or np.max(np.abs(t * step)) < 1e-12:
+            return A, it, []
+    return A, MAX_ITER, [f"multi-class Laplace Newton did not converge in {MAX_ITER} steps"]
+
+
+def _class_precisions(E, M):
+    """P_c = E_c - E_c (sum E)^-1 E_c, the diagonal blocks of (K + W^-1)^-1 (GPML eq. 3.41-3.42),
+    and V_c = M \\ E_c. Returns (P (C, n, n), V (C, n, n))."""
+    V = np.stack([solve_triangular(M, Ec, lower=True, check_finite=False) for Ec in E])
+    P = E - np.einsum("cki,ckj->cij", V, V)
+    return P, V
+
+
+def posterior_from_mode(K, Y, A, n_iter=0, warnings=()):
+    """Posterior for predictions (GPML Alg. 3.4): weights y - pi (line 4), per-class precisions
+    P_c such that Sigma_cc = k** - k*^T P_c k* (lines 5-9)."""
+    F = K @ A
+    Pi, E, M, log_det = _blocks(K, F)
+    P, _ = _class_precisions(E, M)
+    lml = _objective(A, F, Y) - log_det
+    return Posterior(Y - Pi, P, float(lml), n_iter, {"a": A}, list(warnings))
+
+
+def fit(K, Y, A0=None):
+    """Fit the multi-class Laplace posterior (GPML Alg. 3.3 then 3.4)."""
+    A, n_iter, warnings = find_mode(K, Y, A0)
+    return posterior_from_mode(K, Y, A, n_iter, warnings)
+
+
+def lml_and_gradient(kernel, X, K, Y, A0=None):
+    """Approximate log marginal likelihood and its gradient in the log hyperparameters.
+
+    log q = Psi(f^) - log|I + K W| / 2. Its derivative (GPML sec. 5.5.2, eq. 5.22 generalised):
+      explicit: 1/2 sum_c a_c^T dK a_c - 1/2 tr(sum_c R_cc dK), R = (K + W^-1)^-1 with blocks
+                R_cc' = delta_cc' E_c - E_c (sum E)^-1 E_c';
+      implicit: s^T df^/dtheta with df^/dtheta = (I + K W)^-1 dK a (eq. 5.24), and per point i,
+                s_ic = -1/2 tr(Sigma_i dW_i / df_ic), Sigma_i the (C, C) posterior block of point i;
+                for W_i = diag(pi) - pi pi^T this is
+                -1/2 pi_c (S_cc - sum_a pi_a S_aa - 2 (S pi)_c + 2 pi^T S pi).
+    Returns (lml, grad, posterior).
+    """
+    A, n_iter, warnings = find_mode(K, Y, A0)
+    F = K @ A
+    Pi, E, M, log_det = _blocks(K, F)
+    P, _ = _class_precisions(E, M)
+    lml = _objective(A, F, Y) - log_det
+    n, n_classes = Y.shape
+    # per-point (C, C) blocks of Sigma = K - K R K
+    KE = np.einsum("ij,cjk->cik", K, E)  # K E_c
+    T = np.stack([solve_triangular(M, KEc.T, lower=True, check_finite=False) for KEc in KE])
+    S = np.einsum("ani,bni->iab", T, T)  # + K E_c (sum E)^-1 E_c' K, diagonal entries
+    diag_KEK = np.einsum("cij,ij->ic", KE, K)
+    S[:, np.arange(n_classes), np.arange(n_classes)] += np.diag(K)[:, None] - diag_KEK
+    S_pi = np.einsum("iab,ib->ia", S, Pi)
+    diag_S = np.einsum("iaa->ia", S)
+    s = -0.5 * Pi * (diag_S - (Pi * diag_S).sum(1, keepdims=True) - 2.0 * S_pi
+                     + 2.0 * (Pi * S_pi).sum(1, keepdims=True))
+    # u = s - R K s, with (R q)_c = E_c q_c - E_c (sum E)^-1 sum_c' E_c' q_c'
+    Q = K @ s
+    EQ = np.einsum("cij,jc->ic", E, Q)
+    w = cho_solve((M, True), EQ.sum(1), check_finite=False)
+    U = s - (EQ - np.einsum("cij,j->ic", E, w))
+    G = 0.5 * A @ A.T - 0.5 * P.sum(0) + 0.5 * (U @ A.T + A @ U.T)
+    grad = kernel.gradient_contractions(X, K, G)
+    post = Posterior(Y - Pi, P, float(lml), n_iter, {"a": A}, warnings)
+    return float(lml), grad, post

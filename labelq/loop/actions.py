@@ -1,0 +1,152 @@
+"""What the user does to a store, each as one plain function: the event is committed first, then
+the model work follows (so a crash during a refit never loses a label)."""
+
+from __future__ import annotations
+
+import getpass
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Optional
+
+from labelq.ingest import read_candidates
+from labelq.loop import settings
+from labelq.loop.refit import Progress, ensure_fit
+from labelq.store import Store
+
+
+def default_person() -> str:
+    """Who is labelling: $LABELQ_BY, else the login name."""
+    name = os.environ.get("LABELQ_BY")
+    if name:
+        return name
+    try:
+        return getpass.getuser()
+    except Exception:  # no login name in some containers
+        return "unknown"
+
+
+def create_store(path: Path, classes: list[str]) -> Store:
+    """A new, empty store at ``path`` for the given classes."""
+    return Store.create(path, classes)
+
+
+@dataclass
+class ImportResult:
+    """What an import added."""
+
+    candidates: int
+    labels: int
+    features: list[str]
+    metadata: list[str]
+
+
+def import_candidates(store: Store, csv_path: Path, id_column: str, features=None,
+                      labels_column: Optional[str] = None, by: str = "import",
+                      progress=None) -> ImportResult:
+    """Read, validate and add a CSV of candidates in one transaction (nothing added on error)."""
+    table = read_candidates(csv_path, id_column, features=features, labels_column=labels_column,
+                            expected_features=store.feature_names or None, progress=progress)
+    store.add_candidates(table.keys, table.X, table.meta, table.feature_names,
+                         labels=table.labels, by=by)
+    n_labels = sum(1 for v in (table.labels or []) if v is not None)
+    return ImportResult(len(table.keys), n_labels, table.feature_names, table.meta_columns)
+
+
+@dataclass
+class StepResult:
+    """An event and the fit made after it."""
+
+    event: object
+    fit: object
+
+
+def label(store: Store, key: str, class_: str, by: str, note: Optional[str] = None,
+          relabel: bool = False, strategy: Optional[str] = None, session_id=None,
+          progress: Progress = None) -> StepResult:
+    """Record a label (committed at once), then refit, re-rank and snapshot."""
+    event = store.label(key, class_, by, note=note, relabel=relabel)
+    store.release(by)
+    return StepResult(event, ensure_fit(store, strategy, session_id=session_id, progress=progress))
+
+
+def skip(store: Store, key: str, by: str, strategy: Optional[str] = None, session_id=None,
+         progress: Progress = None) -> StepResult:
+    """Record a skip (the candidate sinks to the bottom of the queue), then re-rank."""
+    event = store.skip(key, by)
+    store.release(by)
+    return StepResult(event, ensure_fit(store, strategy, session_id=session_id, progress=progress))
+
+
+def undo(store: Store, by: str, strategy: Optional[str] = None, session_id=None,
+         progress: Progress = None) -> StepResult:
+    """Retract the most recent label or skip (an appended retraction), then refit."""
+    event = store.undo(by)
+    return StepResult(event, ensure_fit(store, strategy, session_id=session_id, progress=progress))
+
+
+@dataclass
+class QueueRow:
+    """One candidate in a queue as shown: its rank, class probabilities and the strategy's score."""
+
+    rank: int
+    candidate_id: int
+    key: str
+    predicted: int
+    probabilities: object
+    p_top: float
+    score: float
+    meta: dict
+    skipped: bool
+
+
+def row_score(strategy: str, row) -> float:
+    """The number shown in the queue's score column for ``strategy`` (see acquire.display_score)."""
+    if strategy == "entropy":
+        return row.entropy
+    if strategy == "margin":
+        return row.margin
+    if strategy == "bald":
+        return row.bald
+    return row.priority
+
+
+def meta_columns(rows) -> list[str]:
+    """Metadata column names in first-seen order across ``rows``."""
+    seen: dict[str, None] = {}
+    for row in rows:
+        seen.update(dict.fromkeys(row.meta))
+    return list(seen)
+
+
+@dataclass
+class Queue:
+    """The head of the queue as shown to one person."""
+
+    rows: list
+    strategy: str
+    cold_start: bool
+    fit: object
+
+
+def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
+               holder: Optional[str] = None, session_id=None,
+               progress: Progress = None) -> Queue:
+    """The first ``n`` candidates to label, from persisted scores (refitting only when stale).
+
+    The first row is claimed for ``holder`` for settings.CLAIM_SECONDS so that a second person
+    asking at the same time is handed another candidate.
+    """
+    if n < 1:
+        raise ValueError("n must be at least 1")
+    fit = ensure_fit(store, strategy, session_id=session_id, progress=progress)
+    info = fit.info or {}
+    shown = info.get("strategy", fit.strategy)
+    cold = bool(info.get("cold_start"))
+    skipped = set(store.skipped_ids().tolist())
+    rows = [QueueRow(r.rank, r.candidate_id, r.key, r.predicted, r.probabilities, r.p_top,
+                     0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped)
+            for r in store.queue(n, holder=holder)]
+    if holder and rows:
+        store.claim([rows[0].candidate_id], holder, seconds=settings.CLAIM_SECONDS)
+    return Queue(rows, shown, cold, fit)

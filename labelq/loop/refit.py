@@ -1,0 +1,281 @@
+"""Refit the classifier from the label events, score and rank the pool, record the fit.
+
+A fit is a deterministic function of (the pool, the current labels and skips, the previous fit):
+- the same label set as an earlier fit whose model is kept reuses that model unchanged (so `undo`
+  gives back exactly the queue before the label, and a skip only re-ranks);
+- otherwise the previous model warm-starts the Newton iteration with its hyperparameters held
+  fixed; they are learnt afresh on the schedule of labelq.gp.schedule (from 16 labels, at each
+  doubling) or when a warm fit's log marginal likelihood per label falls by LML_DROP_PER_LABEL;
+- with no labels, or one class only, the head of the queue is a farthest-point spread (cold start).
+Everything here is rebuildable from the label events (see `labelq.loop.maintain.rebuild`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import time
+from contextlib import nullcontext
+from dataclasses import dataclass, field
+from typing import Callable, Optional
+
+import numpy as np
+
+from labelq.acquire import (bald_bits, cold_start, entropy_bits, margin, priority, rank_order,
+                            select_batch)
+from labelq.gp import GPClassifier
+from labelq.gp.intervals import probability_interval
+from labelq.gp.schedule import LEARN_FROM, learning_due
+from labelq.loop import settings
+from labelq.review import cohen_kappa, snapshot, stop_set
+from labelq.review.blas_threads import single_blas_thread
+
+Progress = Optional[Callable[[str, int, int], None]]
+
+
+@dataclass
+class PoolState:
+    """What a fit sees: the pool in standardised features, the labels and the skips at one mark."""
+
+    mark: int
+    ids: np.ndarray  # (N,) int64, ascending
+    X: np.ndarray  # (N, d) standardised
+    label_ids: np.ndarray  # (n,) candidate ids with a current label
+    label_classes: list  # (n,) class names
+    skipped: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+
+    def positions(self, cand_ids) -> np.ndarray:
+        """Row positions in the pool of the given candidate ids."""
+        return np.searchsorted(self.ids, np.asarray(cand_ids, dtype=np.int64))
+
+
+def load_state(store, mark: Optional[int] = None) -> PoolState:
+    """The pool, labels and skips of ``store`` now (or as of event ``mark``), standardised."""
+    if mark is None:
+        mark = store.event_mark()
+    mean, scale = store.feature_scaling()
+    ids_parts, x_parts = [], []
+    for ids, X in store.iter_features(max_mark=mark):
+        ids_parts.append(ids)
+        x_parts.append((X - mean) / scale)
+    d = len(mean)
+    ids = np.concatenate(ids_parts) if ids_parts else np.zeros(0, dtype=np.int64)
+    X = np.vstack(x_parts) if x_parts else np.zeros((0, d))
+    labels = store.labels_as_of(mark)
+    return PoolState(
+        mark=mark,
+        ids=ids,
+        X=X,
+        label_ids=np.array([r.candidate_id for r in labels], dtype=np.int64),
+        label_classes=[r.class_ for r in labels],
+        skipped=np.asarray(store.skipped_ids(max_mark=mark), dtype=np.int64),
+    )
+
+
+def label_fingerprint(label_ids, label_classes) -> str:
+    """A short digest of the label set (order-free), identifying fits made on the same labels."""
+    pairs = sorted(zip((int(i) for i in label_ids), label_classes))
+    text = "\n".join(f"{i}\t{c}" for i, c in pairs)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
+
+
+def is_stale(store) -> bool:
+    """True when labels, skips or candidates changed since the last recorded fit."""
+    last = store.last_fit()
+    return last is None or last.event_mark != store.event_mark()
+
+
+def ensure_fit(store, strategy: Optional[str] = None, session_id=None, progress: Progress = None):
+    """The last fit, refitting first when the store changed since it (or the strategy differs)."""
+    last = store.last_fit()
+    wanted = strategy or (last.strategy if last and last.strategy != "cold-start" else None)
+    wanted = wanted or settings.DEFAULT_STRATEGY
+    if last is not None and last.event_mark == store.event_mark() and _strategy_of(last) == wanted:
+        return last
+    refit(store, load_state(store), wanted, session_id=session_id, progress=progress)
+    return store.last_fit()
+
+
+def _strategy_of(fit) -> str:
+    return (fit.info or {}).get("strategy", fit.strategy)
+
+
+def refit(store, state: PoolState, strategy: str, session_id=None, progress: Progress = None,
+          previous=None) -> int:
+    """Fit, score, rank and snapshot ``state``; record it all in one transaction; return the fit id.
+
+    ``previous`` is the fit to warm-start from and to compare predictions with (default: the
+    store's last fit).
+    """
+    t0 = time.perf_counter()
+    classes = store.classes
+    previous = store.last_fit() if previous is None else previous
+    fingerprint = label_fingerprint(state.label_ids, state.label_classes)
+    n_labels = len(state.label_ids)
+    observed = set(state.label_classes)
+
+    clf, full, reused, full_at = None, False, False, 0
+    if observed:
+        clf, full, reused, full_at = _fit_model(store, state, classes, previous, fingerprint,
+                                                progress)
+    if progress:
+        progress("scoring", 0, len(state.ids))
+    scores = _score(clf, state, classes, strategy)
+    if progress:
+        progress("ranking", len(state.ids), len(state.ids))
+    cold = len(observed) < 2
+    rank = _rank(clf, state, scores, strategy, cold)
+
+    stop_ids = stop_set(state.ids)
+    kappa = None
+    if previous is not None and not cold and previous.model is not None:
+        before = store.predictions_for(stop_ids)
+        now = scores["predicted"][state.positions(stop_ids)]
+        keep = before >= 0
+        if keep.any():
+            kappa = float(cohen_kappa(before[keep], now[keep]))
+    unlabelled = np.ones(len(state.ids), dtype=bool)
+    unlabelled[state.positions(state.label_ids)] = False
+    snap = snapshot(scores["proba"][unlabelled], classes, uncertain_below=settings.UNCERTAIN_BELOW)
+    snap["agreement_kappa"] = kappa
+
+    info = {"strategy": strategy, "cold_start": cold, "reused": reused, "full_at": full_at}
+    fit = {
+        "session_id": session_id,
+        "n_labels": n_labels,
+        "strategy": "cold-start" if cold else strategy,
+        "hyperparameters": dict(clf.hyperparameters_) if clf is not None else {},
+        "log_marginal_likelihood": (float(clf.log_marginal_likelihood_)
+                                    if clf is not None else None),
+        "seconds": time.perf_counter() - t0,
+        "event_mark": state.mark,
+        "model": clf.to_dict() if clf is not None else None,
+        "info": info,
+        "warnings": list(getattr(clf, "fit_warnings_", []) or []) if clf is not None else [],
+        "full_optimize": bool(full),
+        "fingerprint": fingerprint,
+    }
+    return store.record_fit(
+        fit, state.ids, scores["proba"], scores["predicted"], scores["p_top"], scores["p_low"],
+        scores["p_high"], scores["entropy"], scores["margin"], scores["bald"], scores["priority"],
+        rank, snap, keep_models=settings.KEEP_MODELS,
+    )
+
+
+def new_classifier() -> GPClassifier:
+    """The classifier every fit uses (features arrive standardised with the pool's scaling)."""
+    return GPClassifier(kernel=settings.KERNEL, link=settings.LINK, inference=settings.INFERENCE,
+                        ard=settings.ARD, optimize=True, standardize=False, random_state=0)
+
+
+def _fit_model(store, state, classes, previous, fingerprint, progress):
+    """Return (classifier, re-learnt?, reused an earlier model?, labels at the last full fit)."""
+    earlier = store.fit_with_fingerprint(fingerprint)
+    if earlier is not None and earlier.model is not None:
+        return (GPClassifier.from_dict(earlier.model), False, True,
+                (earlier.info or {}).get("full_at", 0))
+    pos = state.positions(state.label_ids)
+    X, y = state.X[pos], np.asarray(state.label_classes, dtype=object)
+    n = len(y)
+    if previous is not None and previous.model is not None:
+        clf = GPClassifier.from_dict(previous.model)
+        full_at = (previous.info or {}).get("full_at", 0)
+    else:
+        clf, full_at = new_classifier(), 0
+    warm = previous is not None and previous.model is not None
+    full = learning_due(n, full_at)
+    if progress:
+        progress("fitting", 0, n)
+    with small_fit_threads(n):
+        # Learning starts afresh from the data-driven start (see labelq.gp.schedule); other fits
+        # keep the hyperparameters and warm-start the Newton iteration from the previous mode.
+        clf.optimize = full
+        clf.fit(X, y, warm_start=warm and not full, classes=classes)
+        if (not full and n >= LEARN_FROM and previous is not None
+                and previous.log_marginal_likelihood is not None):
+            before = previous.log_marginal_likelihood / max(previous.n_labels, 1)
+            if clf.log_marginal_likelihood_ / n < before - settings.LML_DROP_PER_LABEL:
+                clf.optimize = True
+                clf.fit(X, y, warm_start=False, classes=classes)
+                full = True
+    return clf, full, False, (n if full else full_at)
+
+
+def small_fit_threads(n: int):
+    """One BLAS thread for fits on few labels (threads only add overhead there), else unchanged."""
+    return single_blas_thread() if n < settings.THREADED_FIT_FROM else nullcontext()
+
+
+def _score(clf, state: PoolState, classes, strategy):
+    """Class probabilities, the three acquisition scores and the strategy's priority per row."""
+    n, c = len(state.ids), len(classes)
+    if clf is None:
+        proba = np.full((n, c), 1.0 / c)
+        zeros = np.zeros(n)
+        return {"proba": proba, "predicted": np.zeros(n, dtype=np.int64), "p_top": proba[:, 0],
+                "p_low": proba[:, 0], "p_high": proba[:, 0], "entropy": entropy_bits(proba),
+                "margin": zeros, "bald": zeros, "priority": np.zeros(n), "mean": None, "var": None}
+    pred = clf.predict_pool(state.X, chunk_size=settings.POOL_CHUNK)
+    proba, mean, var = pred.proba, pred.mean, pred.var
+    link = settings.LINK if c == 2 else "softmax"
+    predicted = np.argmax(proba, axis=1)
+    low, high = probability_interval(mean, var, predicted, link=settings.LINK)
+    return {
+        "proba": proba,
+        "predicted": predicted,
+        "p_top": proba[np.arange(n), predicted],
+        "p_low": low,
+        "p_high": high,
+        "entropy": entropy_bits(proba),
+        "margin": margin(proba, mean, var) if c == 2 else margin(proba),
+        "bald": bald_bits(mean, var, link),
+        "priority": priority(strategy, proba, mean, var, link),
+        "mean": mean,
+        "var": var,
+    }
+
+
+def _rank(clf, state: PoolState, scores, strategy, cold) -> np.ndarray:
+    """Rank 1..M for unlabelled candidates (head spread out, skipped last); -1 for labelled ones."""
+    n = len(state.ids)
+    rank = np.full(n, -1, dtype=np.int64)
+    unl = np.ones(n, dtype=bool)
+    unl[state.positions(state.label_ids)] = False
+    rows = np.flatnonzero(unl)
+    if rows.size == 0:
+        return rank
+    skipped = np.isin(state.ids[rows], state.skipped)
+    order = rows[rank_order(scores["priority"][rows], state.ids[rows], skipped)]
+    if cold:
+        head = _cold_head(state, rows[~skipped], np.flatnonzero(~unl))
+    else:
+        head = _spread_head(clf, state, scores, strategy, rows, skipped)
+    rest = order[~np.isin(order, head)]
+    final = np.concatenate([head, rest])
+    rank[final] = np.arange(1, final.size + 1)
+    return rank
+
+
+def _cold_head(state, free, labelled):
+    """Farthest-point picks among ``free`` rows, away from the ``labelled`` rows too."""
+    if free.size == 0:
+        return free
+    both = np.concatenate([free, labelled])
+    picks = cold_start(state.X[both], min(settings.COLD_START_SIZE, free.size),
+                       labelled=np.arange(free.size, both.size) if labelled.size else None)
+    return both[np.asarray(picks, dtype=np.int64)]
+
+
+def _spread_head(clf, state, scores, strategy, rows, skipped):
+    """The first HEAD_SIZE picks as a spread-out batch (see acquire.select_batch)."""
+    c = scores["proba"].shape[1]
+    link = settings.LINK if c == 2 else "softmax"
+    mean = scores["mean"][rows]
+    var = scores["var"][rows]
+
+    def cross_cov(shortlist, j):
+        return clf.latent_cross_cov(state.X[rows[shortlist]], state.X[rows[[j]]])[:, 0]
+
+    picks = select_batch(strategy, scores["proba"][rows], mean, var, link,
+                         settings.HEAD_SIZE, cross_cov, state.ids[rows],
+                         skipped_mask=skipped)
+    return rows[np.asarray(picks, dtype=np.int64)]

@@ -1,0 +1,288 @@
+"""Read-only views of a store for people and scripts: status, history, one candidate, exports, and
+the strategy replay on a labelled CSV. Each returns plain data (dicts, lists, text)."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Optional
+
+import numpy as np
+
+from labelq.errors import LabelqError
+from labelq.gp import GPClassifier
+from labelq.gp.intervals import probability_interval
+from labelq.ingest import read_candidates
+from labelq.loop import settings
+from labelq.loop.refit import ensure_fit
+from labelq.review import render_chart, simulate, stopping_advice, write_png
+
+
+class UnknownExportError(LabelqError):
+    """`export` was asked for something other than labels, predictions or model."""
+
+
+class NothingFittedError(LabelqError):
+    """The store has no fitted model yet (no labels from two classes)."""
+
+
+def label_counts(store) -> dict:
+    """Labels per class, every class included."""
+    counts = {c: 0 for c in store.classes}
+    for rec in store.current_labels():
+        counts[rec.class_] += 1
+    return counts
+
+
+def _fit_summary(fit) -> Optional[dict]:
+    if fit is None:
+        return None
+    return {
+        "fit": fit.id,
+        "n_labels": fit.n_labels,
+        "strategy": fit.strategy,
+        "log_marginal_likelihood": fit.log_marginal_likelihood,
+        "hyperparameters": fit.hyperparameters,
+        "seconds": round(fit.seconds, 3) if fit.seconds is not None else None,
+        "at": fit.at,
+        "warnings": fit.warnings,
+        "hyperparameters_relearnt": bool(fit.full_optimize),
+    }
+
+
+def _learning_fits(store):
+    """Fits made on a new label set (re-uses after undo or a strategy change are left out)."""
+    return [f for f in store.fits() if not (f.info or {}).get("reused")]
+
+
+def status(store) -> dict:
+    """Counts, the last fit, the latest snapshot and the stopping advice (status --json)."""
+    counts = store.counts()
+    per_class = label_counts(store)
+    snaps = {s["fit_id"]: s for s in store.snapshots()}
+    kappas = [snaps.get(f.id, {}).get("agreement_kappa") for f in _learning_fits(store)
+              if f.strategy != "cold-start"]
+    advice = stopping_advice(kappas, per_class)
+    last = store.last_fit()
+    snap = snaps.get(last.id) if last is not None else None
+    return {
+        "db": str(store.path),
+        "candidates": counts["candidates"],
+        "labelled": counts["labelled"],
+        "skipped": counts["skipped"],
+        "classes": per_class,
+        "features": store.feature_names,
+        "last_fit": _fit_summary(last),
+        "stale": last is None or last.event_mark != store.event_mark(),
+        "snapshot": _snapshot_doc(snap),
+        "advice": {"stop": advice.stop, "message": advice.message, "figures": advice.figures,
+                   "flagged_classes": advice.flagged_classes},
+        "caution": "Probabilities are the model's estimates from the labels given so far.",
+    }
+
+
+def _snapshot_doc(snap) -> Optional[dict]:
+    if snap is None:
+        return None
+    return {"mean_entropy": snap["mean_entropy"], "n_uncertain": snap["n_uncertain"],
+            "expected_accuracy": snap["expected_accuracy"], "kappa": snap["agreement_kappa"],
+            "class_counts": snap["class_counts"]}
+
+
+def history(store) -> list[dict]:
+    """One row per fit (history --json contract)."""
+    fits = {f.id: f for f in store.fits()}
+    rows = []
+    for s in store.snapshots():
+        fit = fits.get(s["fit_id"])
+        rows.append({
+            "fit": s["fit_id"],
+            "session": fit.session_id if fit else None,
+            "n_labels": fit.n_labels if fit else None,
+            "mean_entropy": s["mean_entropy"],
+            "n_uncertain": s["n_uncertain"],
+            "expected_accuracy": s["expected_accuracy"],
+            "kappa": s["agreement_kappa"],
+            "at": fit.at if fit else None,
+        })
+    return rows
+
+
+def history_series(rows) -> dict:
+    """Mean entropy and expected accuracy against labels given, for charts."""
+    xs = [r["n_labels"] for r in rows]
+    return {"mean entropy (bits)": (xs, [r["mean_entropy"] for r in rows]),
+            "expected accuracy": (xs, [r["expected_accuracy"] for r in rows])}
+
+
+def history_chart(rows) -> str:
+    """The history as a plain-text chart (at most 80 columns)."""
+    return render_chart(history_series(rows), title="Pool uncertainty by labels given",
+                        x_label="labels", y_label="value")
+
+
+def history_png(rows, path: Path) -> None:
+    """The history chart as a PNG (needs the [plot] extra)."""
+    write_png(path, history_series(rows), title="Pool uncertainty by labels given",
+              x_label="labels", y_label="value")
+
+
+def _model(fit) -> Optional[GPClassifier]:
+    if fit is None or fit.model is None:
+        return None
+    return GPClassifier.from_dict(fit.model)
+
+
+def candidate_view(store, key: str) -> dict:
+    """One candidate: metadata, raw features, p per class with a 5-95% interval, nearest labelled."""
+    rec = store.candidate(key)
+    fit = ensure_fit(store)
+    view = {"key": rec.key, "meta": rec.meta, "features": rec.features, "label": rec.label,
+            "skipped": rec.skipped, "rank": None, "p": {}, "nearest": []}
+    chunk = next(store.scores([rec.id]), None)
+    if chunk is not None and chunk.rank[0] > 0:
+        view["rank"] = int(chunk.rank[0])
+    clf = _model(fit)
+    mean_, scale = store.feature_scaling()
+    x = (np.array([list(rec.features.values())]) - mean_) / scale
+    classes = store.classes
+    if clf is not None:
+        proba = clf.predict_proba(x)[0]
+        m, v = clf.latent(x)
+        for k, c in enumerate(classes):
+            lo, hi = probability_interval(m, v, np.array([k]), link=settings.LINK)
+            view["p"][c] = {"p": float(proba[k]), "low": float(lo[0]), "high": float(hi[0])}
+    labels = store.current_labels()
+    if labels:
+        ids = np.array([r.candidate_id for r in labels], dtype=np.int64)
+        X = (store.features(ids) - mean_) / scale
+        dist = np.sqrt(((X - x) ** 2).sum(axis=1))
+        for j in np.argsort(dist, kind="stable")[:3]:
+            if labels[j].key != rec.key:
+                view["nearest"].append({"key": labels[j].key, "class": labels[j].class_,
+                                        "distance": float(dist[j])})
+    return view
+
+
+def export(store, what: str, as_json: bool = False) -> str:
+    """The text of `export labels|predictions|model` (CSV, or JSON with ``as_json``)."""
+    if what == "labels":
+        rows = [{"key": r.key, "class": r.class_, "by": r.by, "at": r.at, "note": r.note or ""}
+                for r in store.current_labels()]
+        return _table_text(rows, ["key", "class", "by", "at", "note"], as_json)
+    if what == "predictions":
+        ensure_fit(store)
+        return _predictions_text(store, as_json)
+    if what == "model":
+        clf = _model(ensure_fit(store))
+        if clf is None:
+            raise NothingFittedError("no model yet: label candidates of at least two classes first")
+        doc = clf.to_dict()
+        doc["feature_names"] = store.feature_names
+        mean_, scale = store.feature_scaling()
+        doc["feature_scaling"] = {"mean": mean_.tolist(), "scale": scale.tolist()}
+        return json.dumps(doc, indent=1) + "\n"
+    raise UnknownExportError(f"cannot export {what!r}; choose labels, predictions or model")
+
+
+def _predictions_text(store, as_json: bool) -> str:
+    classes = store.classes
+    labelled = {r.candidate_id for r in store.current_labels()}
+    columns = ["key", "predicted"] + [f"p_{c}" for c in classes] + ["p_low", "p_high", "entropy",
+                                                                     "labelled"]
+    rows, meta_cols = [], []
+    for chunk in store.scores():
+        keys = store.keys(chunk.candidate_id)
+        metas = store.metas(chunk.candidate_id)
+        for i, cid in enumerate(chunk.candidate_id):
+            row = {"key": keys[i], "predicted": classes[int(chunk.predicted[i])]}
+            for c, p in zip(classes, chunk.probabilities[i]):
+                row[f"p_{c}"] = round(float(p), 6)
+            row["p_low"] = round(float(chunk.p_low[i]), 6)
+            row["p_high"] = round(float(chunk.p_high[i]), 6)
+            row["entropy"] = round(float(chunk.entropy[i]), 6)
+            row["labelled"] = int(int(cid) in labelled)
+            for k, v in metas[i].items():
+                if k not in meta_cols:
+                    meta_cols.append(k)
+                row.setdefault(k, v)
+            rows.append(row)
+    return _table_text(rows, columns + [m for m in meta_cols if m not in columns], as_json)
+
+
+def _table_text(rows, columns, as_json) -> str:
+    if as_json:
+        return json.dumps(rows, indent=1, ensure_ascii=False) + "\n"
+    buf = io.StringIO()
+    writer = csv.DictWriter(buf, fieldnames=columns, extrasaction="ignore", lineterminator="\n")
+    writer.writeheader()
+    writer.writerows(rows)
+    return buf.getvalue()
+
+
+def write_text(path: Path, text: str) -> None:
+    """Write ``text`` to ``path`` atomically (a temporary file renamed into place)."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(dir=path.parent if str(path.parent) else ".", prefix=".labelq-")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+class SimulationInputError(LabelqError):
+    """The replay file cannot be replayed (too few rows or classes)."""
+
+
+def simulate_csv(path: Path, id_column: str, truth: str, strategies, budget: int, seeds: int,
+                 initial: int, features=None, progress=None) -> dict:
+    """Replay ``strategies`` on a fully labelled CSV (see labelq.review.simulate)."""
+    table = read_candidates(path, id_column, features=features, labels_column=truth)
+    y = np.array(table.labels, dtype=object)
+    if any(v is None for v in table.labels):
+        missing = table.keys[[v is None for v in table.labels].index(True)]
+        raise SimulationInputError(f"{path}: row {missing!r} has no value in column {truth!r}")
+    if len(set(y)) < 2:
+        raise SimulationInputError(f"{path}: column {truth!r} holds fewer than two classes")
+    if initial + budget > len(y):
+        raise SimulationInputError(
+            f"{path}: {len(y)} rows cannot supply {initial} initial labels plus a budget of {budget}")
+    X = table.X
+    scale = X.std(axis=0)
+    scale[~(scale > 0)] = 1.0
+    X = (X - X.mean(axis=0)) / scale
+    result = simulate(X, y, strategies=tuple(strategies), budget=budget,
+                      seeds=tuple(range(seeds)), n_initial=initial, progress=progress)
+    result["file"] = str(path)
+    return result
+
+
+def simulation_series(result) -> dict:
+    """Mean accuracy against labels per strategy, for charts."""
+    return {name: (s["labels"], s["accuracy_mean"]) for name, s in result["strategies"].items()}
+
+
+def simulation_chart(result) -> str:
+    """Learning curves as a plain-text chart."""
+    return render_chart(simulation_series(result), title="Accuracy over the pool by labels given",
+                        x_label="labels", y_label="accuracy")
+
+
+def simulate_png(result, path: Path) -> None:
+    """Learning curves as a PNG (needs the [plot] extra)."""
+    write_png(path, simulation_series(result), title="Accuracy over the pool by labels given",
+              x_label="labels", y_label="accuracy")
+
+
+def latest_mean_entropy(store) -> Optional[float]:
+    """The newest snapshot's mean entropy over unlabelled candidates (bits), or None."""
+    snaps = store.snapshots()
+    return snaps[-1]["mean_entropy"] if snaps else None

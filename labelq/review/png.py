@@ -1,0 +1,44 @@
+"""PNG charts with matplotlib (the optional ``[plot]`` extra), drawn off-screen with Agg."""
+
+from typing import Mapping, Sequence, Tuple
+
+from labelq.errors import LabelqError
+
+
+class PlotUnavailableError(LabelqError):
+    """matplotlib, needed for PNG charts, is not installed."""
+
+
+def write_png(
+    path,
+    series: Mapping[str, Tuple[Sequence[float], Sequence[float]]],
+    title: str,
+    x_label: str,
+    y_label: str,
+) -> None:
+    """Write the same series as :func:`labelq.review.render_chart` to a PNG file at ``path``.
+
+    Uses matplotlib's Agg canvas directly, so no display and no global pyplot state is touched.
+    Raises PlotUnavailableError when matplotlib cannot be imported.
+    """
+    try:
+        import matplotlib  # noqa: F401  (import the package first so a blocked install is caught)
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+    except ImportError:
+        raise PlotUnavailableError(
+            "plotting needs matplotlib: pip install 'labelq[plot]'"
+        ) from None
+    fig = Figure(figsize=(7.0, 4.0), dpi=100)
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    for name, (xs, ys) in series.items():
+        ax.plot(list(xs), list(ys), marker="o", markersize=2.5, linewidth=1.2, label=name)
+    ax.set_title(title)
+    ax.set_xlabel(x_label)
+    ax.set_ylabel(y_label)
+    ax.grid(True, alpha=0.3)
+    if series:
+        ax.legend(loc="best", frameon=False)
+    fig.tight_layout()
+    fig.savefig(path, format="png")

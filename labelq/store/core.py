@@ -1,0 +1,97 @@
+"""State and queries shared by the parts of :class:`labelq.store.Store`.
+
+A label event is *live* when it is not itself a retraction and nothing retracts it; a candidate's
+current label is its latest live label event. A skip event is live in the same sense; a candidate is
+skipped while it has a live skip event (there is at most one).
+"""
+
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import AbstractContextManager
+from pathlib import Path
+from typing import Any
+
+from sqlalchemy import Connection, Engine, text
+
+from labelq.store.engine import driver, reading, writing
+from labelq.store.errors import UnknownKeyError
+
+LIVE_LABEL = (
+    "+l.retracts_id IS NULL" " AND NOT EXISTS (SELECT 1 FROM label_events r WHERE r.retracts_id = l.id)"
+)
+"""SQL condition on ``label_events l``: the event is a label and has not been retracted."""
+
+LIVE_SKIP = (
+    "+s.retracts_id IS NULL" " AND NOT EXISTS (SELECT 1 FROM skip_events r WHERE r.retracts_id = s.id)"
+)
+"""SQL condition on ``skip_events s``: the event is a skip and has not been retracted.
+
+The unary ``+`` in both conditions keeps SQLite from answering ``retracts_id IS NULL`` with the
+retracts_id index (which matches nearly every row) instead of the candidate_id index.
+"""
+
+CURRENT_LABEL_IDS = f"SELECT MAX(l.id) FROM label_events l WHERE {LIVE_LABEL} GROUP BY l.candidate_id"
+"""SQL yielding the id of every candidate's current label event."""
+
+_ID_CHUNK = 5000
+
+
+class StoreCore:
+    """The engine, path and transaction helpers each part of the store builds on."""
+
+    def __init__(self, path: Path, engine: Engine) -> None:
+        self._path = path
+        self._engine = engine
+
+    @property
+    def path(self) -> Path:
+        """The store's file."""
+        return self._path
+
+    def _read(self) -> AbstractContextManager[Connection]:
+        return reading(self._engine)
+
+    def _write(self) -> AbstractContextManager[Connection]:
+        return writing(self._engine)
+
+
+def candidate_id(connection: Connection, key: str) -> int:
+    """The id of the candidate ``key``; UnknownKeyError if there is none."""
+    found = connection.execute(text("SELECT id FROM candidates WHERE key = :key"), {"key": key}).scalar()
+    if found is None:
+        raise UnknownKeyError(f"no candidate with key {key!r}")
+    return found
+
+
+def class_names(connection: Connection) -> list[str]:
+    """The store's classes in position order."""
+    return list(connection.execute(text("SELECT name FROM classes ORDER BY position")).scalars())
+
+
+def feature_names(connection: Connection) -> list[str]:
+    """The store's feature names in column order; empty before the first import."""
+    return list(connection.execute(text("SELECT name FROM feature_schema ORDER BY position")).scalars())
+
+
+def rows_by_id(connection: Connection, select_sql: str, ids: Sequence[int]) -> dict[int, tuple[Any, ...]]:
+    """Run ``select_sql`` (first column the id, ``{ids}`` where the id list goes) for ``ids``.
+
+    The ids are sent in chunks so any number of them stays within SQLite's parameter limit.
+    """
+    unique = sorted({int(i) for i in ids})
+    cursor = driver(connection).cursor()
+    found: dict[int, tuple[Any, ...]] = {}
+    for start in range(0, len(unique), _ID_CHUNK):
+        chunk = unique[start : start + _ID_CHUNK]
+        sql = select_sql.format(ids=",".join("?" * len(chunk)))
+        found.update((row[0], row) for row in cursor.execute(sql, chunk))
+    cursor.close()
+    return found
+
+
+def in_given_order(
+    found: dict[int, tuple[Any, ...]], ids: Sequence[int], missing: Callable[[int], Any]
+) -> Iterator[Any]:
+    """The rows of ``found`` in the order of ``ids``; ``missing(id)`` for an id without a row."""
+    for i in ids:
+        row = found.get(int(i))
+        yield missing(int(i)) if row is None else row

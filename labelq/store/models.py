@@ -1,0 +1,189 @@
+"""SQLAlchemy 2 typed models of the store; the Alembic revisions in ``labelq/migrations`` build them.
+
+Label and skip events are append-only: undo appends a retraction whose ``retracts_id`` points at the
+event it cancels. Every event carries the store's event mark at the moment it was written, which
+orders labels and skips on one time line. Fits, scores and snapshots are derived from the labels
+and may be deleted and rebuilt at any time.
+"""
+
+from typing import Any, Optional
+
+from sqlalchemy import (
+    JSON,
+    CheckConstraint,
+    Float,
+    ForeignKey,
+    Integer,
+    LargeBinary,
+    MetaData,
+    String,
+    Text,
+)
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
+
+NAMING_CONVENTION = {
+    "ix": "ix_%(table_name)s_%(column_0_N_name)s",
+    "uq": "uq_%(table_name)s_%(column_0_N_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+APPLICATION = "labelq"
+"""Value of ``store_info.application`` that marks an SQLite file as a labelq store."""
+
+
+class Base(DeclarativeBase):
+    """Declarative base of every store table."""
+
+    metadata = MetaData(naming_convention=NAMING_CONVENTION)
+
+
+class StoreInfo(Base):
+    """The single marker row: which application owns the file, and the event mark counter."""
+
+    __tablename__ = "store_info"
+    __table_args__ = (CheckConstraint("id = 1", name="single_row"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    application: Mapped[str] = mapped_column(String)
+    created_at: Mapped[str] = mapped_column(String)
+    event_mark: Mapped[int] = mapped_column(Integer)
+
+
+class Candidate(Base):
+    """An item of the pool: a unique key, a float64 feature row and free-form metadata."""
+
+    __tablename__ = "candidates"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    key: Mapped[str] = mapped_column(String, unique=True)
+    features: Mapped[bytes] = mapped_column(LargeBinary)
+    meta: Mapped[dict[str, Any]] = mapped_column(JSON)
+    added_at: Mapped[str] = mapped_column(String)
+    added_mark: Mapped[int] = mapped_column(Integer, server_default="0")
+
+
+class FeatureColumn(Base):
+    """One feature: its name, column position and the pool-wide mean and scale."""
+
+    __tablename__ = "feature_schema"
+
+    name: Mapped[str] = mapped_column(String, primary_key=True)
+    position: Mapped[int] = mapped_column(Integer, unique=True)
+    mean: Mapped[float] = mapped_column(Float)
+    scale: Mapped[float] = mapped_column(Float)
+
+
+class LabelClass(Base):
+    """One class a candidate can be labelled with, in display order."""
+
+    __tablename__ = "classes"
+
+    name: Mapped[str] = mapped_column(String, primary_key=True)
+    position: Mapped[int] = mapped_column(Integer, unique=True)
+
+
+class LabelEvent(Base):
+    """A label given to a candidate, or (``class_`` NULL) the retraction of an earlier label event."""
+
+    __tablename__ = "label_events"
+    __table_args__ = (
+        CheckConstraint('("class" IS NULL) <> (retracts_id IS NULL)', name="label_or_retraction"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), index=True)
+    class_: Mapped[Optional[str]] = mapped_column("class", ForeignKey("classes.name"))
+    by: Mapped[str] = mapped_column(String)
+    note: Mapped[Optional[str]] = mapped_column(Text)
+    at: Mapped[str] = mapped_column(String)
+    mark: Mapped[int] = mapped_column(Integer)
+    retracts_id: Mapped[Optional[int]] = mapped_column(ForeignKey("label_events.id"), unique=True)
+
+
+class SkipEvent(Base):
+    """A skip of a candidate, or (``retracts_id`` set) the retraction of an earlier skip."""
+
+    __tablename__ = "skip_events"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), index=True)
+    by: Mapped[str] = mapped_column(String)
+    at: Mapped[str] = mapped_column(String)
+    mark: Mapped[int] = mapped_column(Integer)
+    retracts_id: Mapped[Optional[int]] = mapped_column(ForeignKey("skip_events.id"), unique=True)
+
+
+class LabelSession(Base):
+    """One sitting at the terminal."""
+
+    __tablename__ = "sessions"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    started_at: Mapped[str] = mapped_column(String)
+    ended_at: Mapped[Optional[str]] = mapped_column(String)
+    by: Mapped[str] = mapped_column(String)
+
+
+class Fit(Base):
+    """One model run: hyperparameters, evidence, timing and the serialised model."""
+
+    __tablename__ = "fits"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    session_id: Mapped[Optional[int]] = mapped_column(ForeignKey("sessions.id"))
+    n_labels: Mapped[int] = mapped_column(Integer)
+    strategy: Mapped[str] = mapped_column(String)
+    hyperparameters: Mapped[dict[str, Any]] = mapped_column(JSON)
+    log_marginal_likelihood: Mapped[Optional[float]] = mapped_column(Float)
+    seconds: Mapped[float] = mapped_column(Float)
+    at: Mapped[str] = mapped_column(String)
+    event_mark: Mapped[int] = mapped_column(Integer)
+    model: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON(none_as_null=True))
+    fingerprint: Mapped[Optional[str]] = mapped_column(String, index=True)
+    info: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON)
+    warnings: Mapped[list[str]] = mapped_column(JSON)
+    full_optimize: Mapped[bool] = mapped_column()
+
+
+class Score(Base):
+    """A candidate's class probabilities and acquisition scores under one fit."""
+
+    __tablename__ = "scores"
+
+    candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), primary_key=True)
+    fit_id: Mapped[int] = mapped_column(ForeignKey("fits.id"), primary_key=True, index=True)
+    probabilities: Mapped[bytes] = mapped_column(LargeBinary)
+    predicted: Mapped[int] = mapped_column(Integer)
+    p_top: Mapped[float] = mapped_column(Float)
+    p_low: Mapped[float] = mapped_column(Float)
+    p_high: Mapped[float] = mapped_column(Float)
+    entropy: Mapped[float] = mapped_column(Float)
+    margin: Mapped[float] = mapped_column(Float)
+    bald: Mapped[float] = mapped_column(Float)
+    priority: Mapped[float] = mapped_column(Float)
+    rank: Mapped[Optional[int]] = mapped_column(Integer, index=True)
+
+
+class Snapshot(Base):
+    """Pool-wide uncertainty summary taken after a fit."""
+
+    __tablename__ = "snapshots"
+
+    fit_id: Mapped[int] = mapped_column(ForeignKey("fits.id"), primary_key=True)
+    mean_entropy: Mapped[float] = mapped_column(Float)
+    n_uncertain: Mapped[int] = mapped_column(Integer)
+    expected_accuracy: Mapped[float] = mapped_column(Float)
+    agreement_kappa: Mapped[Optional[float]] = mapped_column(Float)
+    class_counts: Mapped[dict[str, int]] = mapped_column(JSON)
+
+
+class Claim(Base):
+    """A candidate held by one labeller until ``expires_at`` so others are not shown it."""
+
+    __tablename__ = "claims"
+
+    candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), primary_key=True)
+    holder: Mapped[str] = mapped_column(String)
+    expires_at: Mapped[str] = mapped_column(String)

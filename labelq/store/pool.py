@@ -1,0 +1,313 @@
+"""The pool: importing candidates, their features, keys and metadata, and pool-wide feature scaling."""
+
+import json
+import sqlite3
+from collections.abc import Iterator, Sequence
+from itertools import repeat
+from typing import Any, NoReturn, Optional
+
+import numpy as np
+from sqlalchemy import Connection, text
+
+from labelq.store.blobs import decode_rows, row_blobs
+from labelq.store.core import feature_names as stored_feature_names
+from labelq.store.core import (
+    CURRENT_LABEL_IDS,
+    LIVE_LABEL,
+    LIVE_SKIP,
+    StoreCore,
+    candidate_id,
+    class_names,
+    in_given_order,
+    rows_by_id,
+)
+from labelq.store.engine import bump_event_mark, driver
+from labelq.store.errors import (
+    DuplicateKeyError,
+    FeatureMismatchError,
+    UnknownCandidateError,
+    UnknownClassError,
+)
+from labelq.store.records import CandidateRecord
+from labelq.store.timestamps import utc_now
+
+_INSERT_CANDIDATE = (
+    "INSERT INTO candidates (key, features, meta, added_at, added_mark) VALUES (?, ?, ?, ?, ?)"
+)
+_INSERT_LABEL = "INSERT INTO label_events (candidate_id, class, by, at, mark) VALUES (?, ?, ?, ?, ?)"
+
+
+class PoolMixin(StoreCore):
+    """Candidates and their features."""
+
+    @property
+    def feature_names(self) -> list[str]:
+        """Feature names in column order; empty before the first import."""
+        with self._read() as connection:
+            return stored_feature_names(connection)
+
+    def feature_scaling(self) -> tuple[np.ndarray, np.ndarray]:
+        """Pool-wide feature mean (d,) and scale (d,), the population std or 1.0 where it is 0."""
+        with self._read() as connection:
+            rows = connection.execute(text("SELECT mean, scale FROM feature_schema ORDER BY position")).all()
+        table = np.array(rows, dtype=np.float64).reshape(len(rows), 2)
+        return table[:, 0].copy(), table[:, 1].copy()
+
+    def add_candidates(
+        self,
+        keys: Sequence[str],
+        X: np.ndarray,
+        meta: Sequence[dict[str, Any]],
+        feature_names: Sequence[str],
+        labels: Optional[Sequence[Optional[str]]] = None,
+        by: str = "import",
+    ) -> int:
+        """Add candidates with features ``X`` (n, d) in one transaction; the number added.
+
+        The first import sets the feature schema; later ones must name the same features in the same
+        order. Given labels become label events by ``by``. The feature mean and scale are then
+        recomputed over the whole pool.
+        """
+        X = np.asarray(X, dtype=np.float64)
+        _validate_import(keys, X, meta, feature_names, labels)
+        if not keys:
+            return 0
+        with self._write() as connection:
+            _ensure_schema(connection, list(feature_names))
+            if labels is not None:
+                _validate_labels(connection, labels)
+            first_id = (
+                1 + connection.execute(text("SELECT COALESCE(MAX(id), 0) FROM candidates")).scalar_one()
+            )
+            now = utc_now()
+            raw = driver(connection)
+            mark = bump_event_mark(connection)
+            try:
+                raw.executemany(
+                    _INSERT_CANDIDATE,
+                    zip(keys, row_blobs(X), map(json.dumps, meta), repeat(now), repeat(mark)),
+                )
+            except sqlite3.IntegrityError:
+                raise DuplicateKeyError(
+                    f"candidate key {_first_stored_key(connection, keys, first_id)!r} is already in the store"
+                ) from None
+            last_id = connection.execute(text("SELECT MAX(id) FROM candidates")).scalar_one()
+            assert last_id == first_id + len(keys) - 1, "candidate ids of one import must be contiguous"
+            if labels is not None:
+                raw.executemany(
+                    _INSERT_LABEL,
+                    (
+                        (first_id + i, label, by, now, mark)
+                        for i, label in enumerate(labels)
+                        if label is not None
+                    ),
+                )
+            _update_scaling(connection, X.shape[1])
+        return len(keys)
+
+    def counts(self) -> dict[str, int]:
+        """Numbers of candidates, labelled candidates and skipped candidates."""
+        with self._read() as connection:
+            return {
+                "candidates": connection.execute(text("SELECT COUNT(*) FROM candidates")).scalar_one(),
+                "labelled": connection.execute(
+                    text(f"SELECT COUNT(DISTINCT l.candidate_id) FROM label_events l WHERE {LIVE_LABEL}")
+                ).scalar_one(),
+                "skipped": connection.execute(
+                    text(f"SELECT COUNT(*) FROM skip_events s WHERE {LIVE_SKIP}")
+                ).scalar_one(),
+            }
+
+    def pool_ids(self) -> np.ndarray:
+        """Every candidate id in id order, int64 (n,)."""
+        with self._read() as connection:
+            cursor = driver(connection).execute("SELECT id FROM candidates ORDER BY id")
+            return np.fromiter((row[0] for row in cursor), dtype=np.int64)
+
+    def iter_features(
+        self, chunk_size: int = 100_000, max_mark: Optional[int] = None
+    ) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+        """Yield ``(ids (m,), X (m, d))`` in id order, at most ``chunk_size`` rows at a time.
+
+        With ``max_mark``, only candidates imported at or before that event mark (the pool as it
+        stood then). All chunks come from one read transaction: a consistent view of the pool.
+        """
+        with self._read() as connection:
+            width = len(stored_feature_names(connection))
+            yield from _feature_chunks(connection, width, chunk_size, max_mark)
+
+    def features(self, ids: Sequence[int]) -> np.ndarray:
+        """Feature rows (len(ids), d) in the order of ``ids``; UnknownCandidateError for a missing id."""
+        with self._read() as connection:
+            width = len(stored_feature_names(connection))
+            found = rows_by_id(connection, "SELECT id, features FROM candidates WHERE id IN ({ids})", ids)
+        blobs = [row[1] for row in in_given_order(found, ids, _unknown_candidate)]
+        return decode_rows(blobs, width)
+
+    def keys(self, ids: Sequence[int]) -> list[str]:
+        """Candidate keys in the order of ``ids``."""
+        with self._read() as connection:
+            found = rows_by_id(connection, "SELECT id, key FROM candidates WHERE id IN ({ids})", ids)
+        return [row[1] for row in in_given_order(found, ids, _unknown_candidate)]
+
+    def metas(self, ids: Sequence[int]) -> list[dict[str, Any]]:
+        """Candidate metadata in the order of ``ids``."""
+        with self._read() as connection:
+            found = rows_by_id(connection, "SELECT id, meta FROM candidates WHERE id IN ({ids})", ids)
+        return [json.loads(row[1]) for row in in_given_order(found, ids, _unknown_candidate)]
+
+    def candidate(self, key: str) -> CandidateRecord:
+        """The candidate ``key`` with its features by name, metadata, current label and skip state."""
+        with self._read() as connection:
+            cid = candidate_id(connection, key)
+            names = stored_feature_names(connection)
+            blob, meta = connection.execute(
+                text("SELECT features, meta FROM candidates WHERE id = :id"), {"id": cid}
+            ).one()
+            label = connection.execute(
+                text(
+                    f"SELECT class FROM label_events WHERE id IN ({CURRENT_LABEL_IDS}) AND candidate_id = :id"
+                ),
+                {"id": cid},
+            ).scalar()
+            skipped = connection.execute(
+                text(
+                    f"SELECT EXISTS (SELECT 1 FROM skip_events s WHERE s.candidate_id = :id AND {LIVE_SKIP})"
+                ),
+                {"id": cid},
+            ).scalar_one()
+        values = decode_rows([blob], len(names))[0]
+        return CandidateRecord(
+            id=cid,
+            key=key,
+            features=dict(zip(names, values.tolist())),
+            meta=json.loads(meta),
+            label=label,
+            skipped=bool(skipped),
+        )
+
+
+def _unknown_candidate(cid: int) -> NoReturn:
+    raise UnknownCandidateError(f"no candidate with id {cid}")
+
+
+def _validate_import(
+    keys: Sequence[str],
+    X: np.ndarray,
+    meta: Sequence[dict[str, Any]],
+    names: Sequence[str],
+    labels: Optional[Sequence[Optional[str]]],
+) -> None:
+    """Check shapes and values of an import; DuplicateKeyError for a key repeated in the input."""
+    if X.ndim != 2 or X.shape[0] != len(keys):
+        raise ValueError(f"X must have shape ({len(keys)}, d) to match the keys, got {X.shape}")
+    if len(meta) != len(keys) or (labels is not None and len(labels) != len(keys)):
+        raise ValueError(f"meta and labels must have one entry per key ({len(keys)})")
+    if len(names) != X.shape[1] or len(set(names)) != len(names) or not all(names):
+        raise ValueError(f"feature names must be {X.shape[1]} distinct non-empty names, got {list(names)}")
+    if not np.isfinite(X).all():
+        raise ValueError("features must be finite numbers")
+    seen: set[str] = set()
+    for key in keys:
+        if key in seen:
+            raise DuplicateKeyError(f"candidate key {key!r} appears more than once in the input")
+        seen.add(key)
+
+
+def _validate_labels(connection: Connection, labels: Sequence[Optional[str]]) -> None:
+    classes = class_names(connection)
+    unknown = next((label for label in labels if label is not None and label not in classes), None)
+    if unknown is not None:
+        raise UnknownClassError(f"unknown class {unknown!r} (classes: {', '.join(classes)})")
+
+
+def _ensure_schema(connection: Connection, names: list[str]) -> None:
+    """Write the feature schema on the first import; FeatureMismatchError if it differs later."""
+    stored = stored_feature_names(connection)
+    if not stored:
+        connection.execute(
+            text(
+                "INSERT INTO feature_schema (name, position, mean, scale) VALUES (:name, :position, 0.0, 1.0)"
+            ),
+            [{"name": name, "position": position} for position, name in enumerate(names)],
+        )
+    elif stored != names:
+        raise FeatureMismatchError(
+            f"features {','.join(names)} do not match the store's features {','.join(stored)}"
+        )
+
+
+def _first_stored_key(connection: Connection, keys: Sequence[str], first_new_id: int) -> str:
+    """The first of ``keys`` (input order) held by a candidate stored before this import."""
+    cursor = driver(connection).cursor()
+    for start in range(0, len(keys), 500):
+        chunk = list(keys[start : start + 500])
+        placeholders = ",".join("?" * len(chunk))
+        stored = {
+            row[0]
+            for row in cursor.execute(
+                f"SELECT key FROM candidates WHERE id < ? AND key IN ({placeholders})", [first_new_id, *chunk]
+            )
+        }
+        for key in chunk:
+            if key in stored:
+                return key
+    raise AssertionError("an import failed on a key constraint without a stored duplicate")
+
+
+def _feature_chunks(
+    connection: Connection, width: int, chunk_size: int, max_mark: Optional[int] = None
+) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+    if max_mark is None:
+        cursor = driver(connection).execute("SELECT id, features FROM candidates ORDER BY id")
+    else:
+        cursor = driver(connection).execute(
+            "SELECT id, features FROM candidates WHERE added_mark <= ? ORDER BY id", (max_mark,)
+        )
+    try:
+        while rows := cursor.fetchmany(chunk_size):
+            ids, blobs = zip(*rows)
+            yield np.array(ids, dtype=np.int64), decode_rows(blobs, width)
+    finally:
+        cursor.close()
+
+
+def _update_scaling(connection: Connection, width: int) -> None:
+    """Recompute each feature's mean and scale over the whole pool and store them."""
+    mean, scale = pool_moments(X for _, X in _feature_chunks(connection, width, 100_000))
+    connection.execute(
+        text("UPDATE feature_schema SET mean = :mean, scale = :scale WHERE position = :position"),
+        [
+            {"mean": m, "scale": s, "position": position}
+            for position, (m, s) in enumerate(zip(mean.tolist(), scale.tolist()))
+        ],
+    )
+
+
+def pool_moments(chunks: Iterator[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Column mean (d,) and scale (d,) of row chunks (m, d) streamed once.
+
+    Chunks are merged with the pairwise update of Chan, Golub & LeVeque (1979), "Updating formulae
+    and a pairwise algorithm for computing sample variances"; scale is the population standard
+    deviation, or 1.0 where it is zero or not finite.
+    """
+    count = 0
+    mean: Optional[np.ndarray] = None
+    m2: Optional[np.ndarray] = None
+    for X in chunks:
+        n_b = X.shape[0]
+        mean_b = X.mean(axis=0)
+        m2_b = ((X - mean_b) ** 2).sum(axis=0)
+        if mean is None or m2 is None:
+            count, mean, m2 = n_b, mean_b, m2_b
+            continue
+        delta = mean_b - mean
+        total = count + n_b
+        mean = mean + delta * (n_b / total)
+        m2 = m2 + m2_b + delta**2 * (count * n_b / total)
+        count = total
+    if mean is None or m2 is None:
+        raise ValueError("pool_moments needs at least one chunk")
+    std = np.sqrt(m2 / count)
+    scale = np.where(np.isfinite(std) & (std > 0), std, 1.0)
+    return mean, scale

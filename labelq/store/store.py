@@ -1,0 +1,139 @@
+"""The labelq store: one SQLite file holding the pool, the labels and the derived model state."""
+
+import os
+import sqlite3
+from collections.abc import Sequence
+from contextlib import closing
+from pathlib import Path
+from types import TracebackType
+from typing import Optional, Union
+
+from sqlalchemy import text
+
+from labelq.store.check import CheckMixin
+from labelq.store.claims import ClaimsMixin
+from labelq.store.core import class_names
+from labelq.store.engine import make_engine, writing
+from labelq.store.errors import (
+    InvalidClassesError,
+    MissingDirectoryError,
+    MissingStoreError,
+    NewerStoreError,
+    NotAStoreError,
+    StoreExistsError,
+)
+from labelq.store.events import EventsMixin
+from labelq.store.fits import FitsMixin
+from labelq.store.migrate import current_revision, head_revision, known_revisions, upgrade
+from labelq.store.models import APPLICATION
+from labelq.store.pool import PoolMixin
+from labelq.store.sessions import SessionsMixin
+
+_SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+class Store(PoolMixin, EventsMixin, SessionsMixin, FitsMixin, ClaimsMixin, CheckMixin):
+    """A labelq store; use :meth:`create` or :meth:`open`, and close it (or use ``with``)."""
+
+    @classmethod
+    def create(cls, path: Union[str, os.PathLike[str]], classes: Sequence[str]) -> "Store":
+        """Create a store at ``path`` with ``classes`` (at least two distinct non-empty names)."""
+        path = Path(path)
+        names = _validate_classes(classes)
+        if not path.parent.is_dir():
+            raise MissingDirectoryError(
+                f"cannot create a store at {path}: directory {path.parent} does not exist"
+            )
+        try:
+            path.open("xb").close()
+        except FileExistsError:
+            raise StoreExistsError(f"a file already exists at {path}") from None
+        engine = make_engine(path)
+        try:
+            with writing(engine) as connection:
+                upgrade(connection)
+                connection.execute(
+                    text("INSERT INTO classes (name, position) VALUES (:name, :position)"),
+                    [{"name": name, "position": position} for position, name in enumerate(names)],
+                )
+        except BaseException:
+            engine.dispose()
+            for leftover in (path, Path(f"{path}-wal"), Path(f"{path}-shm")):
+                leftover.unlink(missing_ok=True)
+            raise
+        return cls(path, engine)
+
+    @classmethod
+    def open(cls, path: Union[str, os.PathLike[str]]) -> "Store":
+        """Open the store at ``path``, upgrading an older schema in place; newer ones are refused."""
+        path = Path(path)
+        revision = _inspect(path)
+        engine = make_engine(path)
+        try:
+            if revision != head_revision():
+                with writing(engine) as connection:
+                    if current_revision(connection) != head_revision():
+                        upgrade(connection)
+        except BaseException:
+            engine.dispose()
+            raise
+        return cls(path, engine)
+
+    def close(self) -> None:
+        """Release the store's connections."""
+        self._engine.dispose()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(
+        self,
+        exc_type: Optional[type[BaseException]],
+        exc: Optional[BaseException],
+        traceback: Optional[TracebackType],
+    ) -> None:
+        self.close()
+
+    @property
+    def classes(self) -> list[str]:
+        """Class names in position order."""
+        with self._read() as connection:
+            return class_names(connection)
+
+
+def _validate_classes(classes: Sequence[str]) -> list[str]:
+    names = list(classes)
+    if (
+        len(names) < 2
+        or len(set(names)) != len(names)
+        or not all(isinstance(name, str) and name.strip() for name in names)
+    ):
+        raise InvalidClassesError(f"classes must be at least two distinct non-empty names, got {names}")
+    return names
+
+
+def _inspect(path: Path) -> str:
+    """The schema revision of the store at ``path``, read without changing the file.
+
+    Raises MissingStoreError, NotAStoreError or NewerStoreError.
+    """
+    if not path.exists():
+        raise MissingStoreError(f"no labelq store at {path} (run `labelq init` first)")
+    if path.is_dir():
+        raise NotAStoreError(f"{path} is a directory, not a labelq store")
+    with path.open("rb") as file:
+        if file.read(len(_SQLITE_HEADER)) != _SQLITE_HEADER:
+            raise NotAStoreError(f"{path} is not an SQLite database, so not a labelq store")
+    try:
+        with closing(sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)) as connection:
+            application = connection.execute("SELECT application FROM store_info WHERE id = 1").fetchone()
+            revision = connection.execute("SELECT version_num FROM alembic_version").fetchone()
+    except sqlite3.DatabaseError:
+        raise NotAStoreError(f"{path} is an SQLite database without the labelq marker") from None
+    if application != (APPLICATION,) or revision is None:
+        raise NotAStoreError(f"{path} is an SQLite database without the labelq marker")
+    if revision[0] not in known_revisions():
+        raise NewerStoreError(
+            f"{path} has schema revision {revision[0]}, unknown to this labelq (written by a newer version?)"
+        )
+    return revision[0]

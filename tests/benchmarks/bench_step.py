@@ -1,0 +1,87 @@
+"""One `label` step at scale, ours beside the same step done with scikit-learn.
+
+A plain script (not collected by pytest):  python tests/benchmarks/bench_step.py [--pool N]
+
+Our step: commit the label + warm refit (mode and hyperparameters) + score and re-rank the whole
+pool + persist scores, fit record and snapshot (labelq.loop.actions.label). The reference step:
+scikit-learn's GaussianProcessClassifier refitted with the same fixed kernel (no hyperparameter
+search) on the same labels, then predict_proba over the pool. Data: scikit-learn's
+make_classification (a generator of the reference library) with n labels from a pool of N
+candidates and d features. Timings are medians over repeats measured side by side in one run.
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+from sklearn.datasets import make_classification
+from sklearn.gaussian_process import GaussianProcessClassifier
+from sklearn.gaussian_process.kernels import RBF, ConstantKernel
+
+from labelq.loop import actions
+from labelq.loop.refit import ensure_fit
+from labelq.store import Store
+
+
+def build_store(path: Path, X, y, n_labels):
+    store = Store.create(path, ["no", "yes"])
+    keys = [f"k{i:07d}" for i in range(len(X))]
+    labels = [("yes" if y[i] else "no") if i < n_labels else None for i in range(len(X))]
+    store.add_candidates(keys, X, [{} for _ in keys], [f"x{j}" for j in range(X.shape[1])],
+                         labels=labels, by="bench")
+    return store, keys
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--pool", type=int, default=100_000)
+    parser.add_argument("--labels", type=int, default=1_000)
+    parser.add_argument("--features", type=int, default=32)
+    parser.add_argument("--repeats", type=int, default=3)
+    args = parser.parse_args()
+    X, y = make_classification(n_samples=args.pool, n_features=args.features,
+                               n_informative=8, random_state=0)
+    with tempfile.TemporaryDirectory() as tmp:
+        store, keys = build_store(Path(tmp) / "bench.db", X, y, args.labels - 1)
+        t0 = time.perf_counter()
+        fit = ensure_fit(store)
+        print(f"first fit (full hyperparameter learning) at n = {args.labels - 1}: "
+              f"{time.perf_counter() - t0:.2f} s")
+        ours = []
+        for r in range(args.repeats):
+            i = args.labels - 1 + r
+            t0 = time.perf_counter()
+            actions.label(store, keys[i], "yes" if y[i] else "no", "bench")
+            ours.append(time.perf_counter() - t0)
+        fit = store.last_fit()
+        hp = fit.hyperparameters
+        store.close()
+
+    ls = np.asarray(hp["lengthscale"], dtype=float)
+    kernel = ConstantKernel(hp["signal_variance"], "fixed") * RBF(ls, "fixed")
+    mean, scale = X.mean(axis=0), X.std(axis=0)
+    Xs = (X - mean) / scale
+    n = args.labels
+    ref = []
+    for _ in range(args.repeats):
+        t0 = time.perf_counter()
+        gpc = GaussianProcessClassifier(kernel=kernel, optimizer=None)
+        gpc.fit(Xs[:n], y[:n])
+        gpc.predict_proba(Xs)
+        ref.append(time.perf_counter() - t0)
+    a, b = statistics.median(ours), statistics.median(ref)
+    print(f"label step, n = {n} labels, N = {args.pool:,} candidates, d = {args.features}")
+    print(f"  labelq       (commit + warm refit + re-rank + persist): median {a:.2f} s "
+          f"over {args.repeats}")
+    print(f"  scikit-learn (fixed-kernel refit + predict_proba):      median {b:.2f} s "
+          f"over {args.repeats}")
+    print(f"  ratio scikit-learn / labelq: {b / a:.1f}x")
+
+
+if __name__ == "__main__":
+    main()

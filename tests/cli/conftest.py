@@ -1,0 +1,120 @@
+"""Shared fixtures for CLI tests: temporary stores built from data bundled with scikit-learn.
+
+Data: scikit-learn's bundled breast-cancer (Wisconsin diagnostic) and iris data sets, written to
+CSV files in a temporary folder; keys are made up as row numbers ("c000").
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import sqlite3
+from pathlib import Path
+
+import pytest
+from sklearn.datasets import load_breast_cancer, load_iris
+from typer.testing import CliRunner
+
+from labelq.cli.app import app
+
+TABLES = ("candidates", "feature_schema", "classes", "label_events", "skip_events", "sessions",
+          "fits", "scores", "snapshots", "claims")
+
+
+def write_csv(path: Path, header, rows) -> Path:
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(header)
+        w.writerows(rows)
+    return path
+
+
+def dataset_csv(path: Path, data, n=None, truth=True, meta=True) -> Path:
+    """Rows of a scikit-learn data set as a CSV: key, [site], features..., [truth]."""
+    X, y = data.data, data.target
+    n = len(y) if n is None else n
+    names = [f.replace(" ", "_") for f in data.feature_names]
+    header = ["key"] + (["site"] if meta else []) + names + (["truth"] if truth else [])
+    rows = []
+    for i in range(n):
+        row = [f"c{i:03d}"] + ([f"s{i % 4}"] if meta else []) + [repr(float(v)) for v in X[i]]
+        if truth:
+            row.append(str(data.target_names[y[i]]))
+        rows.append(row)
+    return write_csv(path, header, rows)
+
+
+@pytest.fixture
+def cancer_csv(tmp_path) -> Path:
+    """The first 200 rows of scikit-learn's breast-cancer data (classes malignant, benign)."""
+    return dataset_csv(tmp_path / "cancer.csv", load_breast_cancer(), n=200)
+
+
+@pytest.fixture
+def iris_csv(tmp_path) -> Path:
+    """scikit-learn's iris data (three classes)."""
+    return dataset_csv(tmp_path / "iris.csv", load_iris())
+
+
+class Cli:
+    """Invoke `labelq` on one temporary store and inspect it."""
+
+    def __init__(self, db: Path):
+        self.db = db
+        self.runner = CliRunner()
+
+    def __call__(self, *args, input=None):
+        return self.runner.invoke(app, [*map(str, args), "--db", str(self.db)], input=input)
+
+    def json(self, *args):
+        result = self(*args, "--json")
+        assert result.exit_code == 0, result.output
+        return json.loads(result.stdout)
+
+    def counts(self) -> dict:
+        """Row counts of every table (the store unchanged <=> equal counts and equal content)."""
+        con = sqlite3.connect(self.db)
+        try:
+            return {t: con.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in TABLES}
+        finally:
+            con.close()
+
+    def truth(self, csv_path: Path) -> dict:
+        with open(csv_path, newline="") as fh:
+            return {r["key"]: r["truth"] for r in csv.DictReader(fh)}
+
+
+@pytest.fixture
+def cli(tmp_path) -> Cli:
+    return Cli(tmp_path / "store.db")
+
+
+@pytest.fixture
+def cancer_store(cli, cancer_csv) -> Cli:
+    """An initialised store holding the cancer rows (truth column kept as metadata)."""
+    assert cli("init", "--classes", "malignant,benign").exit_code == 0
+    result = cli("import", cancer_csv, "--id", "key")
+    assert result.exit_code == 0, result.output
+    return cli
+
+
+def assert_user_error(result, *fragments):
+    """Exit code 2, one line on stderr containing every fragment, no traceback."""
+    assert result.exit_code == 2, (result.exit_code, result.output)
+    err = result.stderr.strip()
+    assert "Traceback" not in result.output + err
+    assert len(err.splitlines()) == 1, err
+    for f in fragments:
+        assert f in err, (f, err)
+
+
+@pytest.fixture
+def user_error():
+    """The assertion for a user error (tests cannot import conftest under importlib mode)."""
+    return assert_user_error
+
+
+@pytest.fixture
+def csv_file():
+    """The CSV writer helper as a fixture."""
+    return write_csv

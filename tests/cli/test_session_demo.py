@@ -1,0 +1,62 @@
+"""The interactive session driven through a pipe, and the demo in an empty folder.
+
+Data: scikit-learn's bundled breast-cancer rows (conftest); the demo's data are the invented
+orchard scenario shipped with labelq.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+
+from labelq.cli.app import app
+
+
+def live_labels(db):
+    con = sqlite3.connect(db)
+    try:
+        return con.execute(
+            "SELECT COUNT(*) FROM label_events l WHERE l.retracts_id IS NULL AND NOT EXISTS "
+            "(SELECT 1 FROM label_events r WHERE r.retracts_id = l.id)").fetchone()[0]
+    finally:
+        con.close()
+
+
+def test_session_through_a_pipe(cancer_store):
+    # three labels (by number and by name), a skip, an undo (takes back the skip), then quit
+    result = cancer_store("session", "--by", "tester", input="1\nbenign\n2\ns\nu\nq\n")
+    assert result.exit_code == 0, result.output
+    assert "Session over: 3 labels, 1 skips, 1 undos" in result.stdout
+    status = cancer_store.json("status")
+    assert status["labelled"] == 3 and status["skipped"] == 0
+    con = sqlite3.connect(cancer_store.db)
+    try:
+        sessions = con.execute("SELECT by, ended_at FROM sessions").fetchall()
+        bys = {r[0] for r in con.execute("SELECT by FROM label_events")}
+    finally:
+        con.close()
+    assert len(sessions) == 1 and sessions[0][0] == "tester" and sessions[0][1] is not None
+    assert bys == {"tester"}
+
+
+def test_session_ends_at_end_of_input(cancer_store):
+    result = cancer_store("session", input="1\n")
+    assert result.exit_code == 0, result.output
+    assert live_labels(cancer_store.db) == 1
+
+
+def test_session_rejects_nonsense_and_goes_on(cancer_store):
+    result = cancer_store("session", input="banana\n7\nq\n")
+    assert result.exit_code == 0
+    assert "not understood" in result.stdout
+    assert live_labels(cancer_store.db) == 0
+
+
+def test_demo_in_an_empty_folder(tmp_path, cli):
+    result = cli.runner.invoke(app, ["demo", "--dir", str(tmp_path / "demo")])
+    assert result.exit_code == 0, result.output
+    db = tmp_path / "demo" / "orchard.db"
+    assert db.exists()
+    assert "labelq session --db" in result.stdout
+    assert live_labels(db) == 8
+    again = cli.runner.invoke(app, ["demo", "--dir", str(tmp_path / "demo")])
+    assert again.exit_code == 2

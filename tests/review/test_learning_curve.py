@@ -1,0 +1,56 @@
+"""Learning-curve figures: labels to reach a target, normalised area under the curve."""
+
+import numpy as np
+import pytest
+
+from labelq.review.learning_curve import curve_summary, labels_to_reach, normalised_auc
+from labelq.review.replay import initial_labels
+
+LABELS = np.array([4, 5, 6, 7, 8])
+
+
+def test_labels_to_reach_is_median_of_first_crossings():
+    """Hand computation: first crossings 5, 7, never -> sorted (5, 7, inf), median 7."""
+    acc = np.array([[0.5, 0.9, 0.9, 0.9, 0.9],
+                    [0.5, 0.6, 0.7, 0.9, 0.9],
+                    [0.5, 0.5, 0.5, 0.5, 0.5]])
+    assert labels_to_reach(LABELS, acc, 0.9) == 7
+
+
+def test_labels_to_reach_is_none_when_median_never_reaches():
+    """Hand computation: crossings (4, inf, inf) have an infinite median."""
+    acc = np.array([[0.95] * 5, [0.5] * 5, [0.5] * 5])
+    assert labels_to_reach(LABELS, acc, 0.9) is None
+
+
+def test_labels_to_reach_even_number_of_runs():
+    """Hand computation: crossings (4, 7) have median 5.5; (4, inf) an infinite one."""
+    assert labels_to_reach(LABELS, np.array([[1.0] * 5, [0, 0, 0, 1, 1.0]]), 0.9) == 5.5
+    assert labels_to_reach(LABELS, np.array([[1.0] * 5, [0.0] * 5]), 0.9) is None
+
+
+def test_normalised_auc():
+    """Hand computation by the trapezoid rule: a line from 0.5 to 0.9 over any span averages 0.7."""
+    assert normalised_auc(np.array([4, 64]), np.array([0.5, 0.9])) == pytest.approx(0.7)
+    assert normalised_auc(LABELS, np.full(5, 0.8)) == pytest.approx(0.8)
+    assert normalised_auc(np.array([4]), np.array([0.6])) == pytest.approx(0.6)
+
+
+def test_curve_summary_keys_and_spread():
+    """Hand computation: two runs 0.6 and 0.8 have mean 0.7 and population sd 0.1."""
+    acc = np.array([[0.6, 0.6], [0.8, 0.8]])
+    out = curve_summary(np.array([4, 5]), acc, np.ones((2, 2)), full_pool_accuracy=0.8)
+    assert out["accuracy_mean"] == pytest.approx([0.7, 0.7])
+    assert out["accuracy_sd"] == pytest.approx([0.1, 0.1])
+    assert out["labels"] == [4, 5] and out["entropy_mean"] == [1.0, 1.0]
+    assert out["labels_to_95"] is None  # 0.95 * 0.8 = 0.76: one of two runs, median infinite
+    assert out["auc"] == pytest.approx(0.7)
+
+
+@pytest.mark.parametrize("seed", range(10))
+def test_initial_labels_cover_two_classes_and_repeat_per_seed(seed):
+    """Common practice, no published source: seeded starts with at least two classes."""
+    y = np.array(["a"] * 90 + ["b"] * 8 + ["c"] * 2)
+    first = initial_labels(y, 4, seed)
+    assert np.array_equal(first, initial_labels(y, 4, seed))
+    assert np.unique(first).size == 4 and np.unique(y[first]).size >= 2

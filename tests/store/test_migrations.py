@@ -1,0 +1,80 @@
+"""Schema revisions: one head, upgrades that keep data, newer stores refused, models in step."""
+
+import sqlite3
+from contextlib import closing
+from pathlib import Path
+
+import pytest
+from alembic.autogenerate import compare_metadata
+from alembic.runtime.migration import MigrationContext
+from alembic.script import ScriptDirectory
+from sqlalchemy import text
+
+from labelq.store import NewerStoreError, Store
+from labelq.store.engine import make_engine, reading, writing
+from labelq.store.migrate import alembic_config, head_revision, upgrade
+from labelq.store.models import Base
+
+from .conftest import CLASSES, FEATURES, table_rows
+
+
+def test_there_is_exactly_one_head() -> None:
+    heads = ScriptDirectory.from_config(alembic_config()).get_heads()
+    assert heads == [head_revision()] == ["0003"]
+
+
+def test_revisions_build_exactly_the_models(store: Store) -> None:
+    with reading(store._engine) as connection:
+        differences = compare_metadata(MigrationContext.configure(connection), Base.metadata)
+    assert differences == []
+
+
+def _store_at_first_revision(path: Path) -> None:
+    """A store as labelq wrote it at revision 0001, holding data written with raw SQL."""
+    engine = make_engine(path)
+    with writing(engine) as connection:
+        upgrade(connection, "0001")
+        # the features blob is 7.0, 12.0, 42.0 as float64 little-endian (IEEE 754 by hand)
+        statements = [
+            "INSERT INTO classes (name, position) VALUES ('export', 0), ('local', 1), ('juice', 2)",
+            "INSERT INTO feature_schema (name, position, mean, scale) VALUES"
+            " ('firmness_kgf', 0, 7.0, 1.0), ('sugar_brix', 1, 12.0, 2.0), ('hue_deg', 2, 60.0, 30.0)",
+            "INSERT INTO candidates (key, features, meta, added_at) VALUES"
+            " ('old-1', X'0000000000001C4000000000000028400000000000004540', '{\"bin\": \"B1\"}',"
+            " '2026-01-01T00:00:00Z')",
+            "INSERT INTO label_events (candidate_id, class, by, at, mark)"
+            " VALUES (1, 'juice', 'ana', '2026-01-01T00:00:01Z', 1)",
+            "INSERT INTO sessions (started_at, by) VALUES ('2026-01-01T00:00:00Z', 'ana')",
+            "UPDATE store_info SET event_mark = 1",
+        ]
+        for statement in statements:
+            connection.execute(text(statement))
+    engine.dispose()
+
+
+def test_open_upgrades_a_first_revision_store_with_its_data(tmp_path: Path) -> None:
+    path = tmp_path / "old.db"
+    _store_at_first_revision(path)
+    assert "fits" not in table_rows(path)
+    with Store.open(path) as store:
+        assert store.check() == []
+        assert store.classes == CLASSES
+        assert store.feature_names == FEATURES
+        record = store.candidate("old-1")
+        assert record.features == {"firmness_kgf": 7.0, "sugar_brix": 12.0, "hue_deg": 42.0}
+        assert record.meta == {"bin": "B1"} and record.label == "juice"
+        assert store.event_mark() == 1
+        assert store.sessions()[0]["by"] == "ana"
+        assert store.last_fit() is None
+        assert store.claim([record.id], "ana") == [record.id]
+    with closing(sqlite3.connect(path)) as connection:
+        assert connection.execute("SELECT version_num FROM alembic_version").fetchall() == [("0003",)]
+
+
+def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:
+    with writing(store._engine) as connection:
+        connection.execute(text("UPDATE alembic_version SET version_num = '0099_future'"))
+    before = table_rows(store.path)
+    with pytest.raises(NewerStoreError, match="0099_future"):
+        Store.open(store.path)
+    assert table_rows(store.path) == before
