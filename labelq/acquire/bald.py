@@ -90,17 +90,21 @@ def _softmax_monte_carlo(mean, var, seed, n_samples):
     n_candidates, n_classes = mean.shape
     half = np.random.default_rng(seed).standard_normal(((n_samples + 1) // 2, n_classes))
     draws = np.concatenate([half, -half])
-    sd = np.sqrt(var)
+    # Work arrays are laid out (classes, rows, draws): reductions over classes are then
+    # element-wise operations on contiguous arrays.
+    draws_t = np.ascontiguousarray(draws.T)[:, None, :]
+    mean_t = np.ascontiguousarray(mean.T)[:, :, None]
+    sd_t = np.ascontiguousarray(np.sqrt(var).T)[:, :, None]
     rows = max(1, _BLOCK_ELEMENTS // draws.size)
     out = np.empty(n_candidates)
     for start in range(0, n_candidates, rows):
         block = slice(start, start + rows)
-        log_p = mean[block, None, :] + sd[block, None, :] * draws
-        log_p -= log_p.max(axis=-1, keepdims=True)
+        log_p = mean_t[:, block] + sd_t[:, block] * draws_t
+        log_p -= log_p.max(axis=0)
         p = np.exp(log_p)
-        total = p.sum(axis=-1, keepdims=True)
+        total = p.sum(axis=0)
         p /= total
         log_p -= np.log(total)
-        expected_entropy = -np.einsum("ksc,ksc->k", p, log_p) / (draws.shape[0] * np.log(2.0))
-        out[block] = entropy_last_axis(p.mean(axis=1)) - expected_entropy
+        expected_entropy = -(p * log_p).sum(axis=0).mean(axis=1) / np.log(2.0)
+        out[block] = entropy_last_axis(p.mean(axis=2).T) - expected_entropy
     return np.maximum(out, 0.0)

@@ -139,9 +139,14 @@ def _rescorer(strategy, mean, var0, link, seed):
     return score
 
 
+RESCORE_POINTS = 256
+"""Quasi-Monte Carlo points for softmax probabilities while rescoring a batch: only the order of
+the shortlist matters there, and 256 points keep the error to a few 1e-3 at an eighth the cost."""
+
+
 def _class_proba(mean, var, link):
     """Class probabilities (m, n_classes) from the latent, via labelq.gp."""
-    p = predictive_probability(mean, var, link)
+    p = predictive_probability(mean, var, link, n_points=RESCORE_POINTS if link == "softmax" else None)
     return p if link == "softmax" else np.stack([1.0 - p, p], axis=1)
 
 

@@ -43,7 +43,8 @@ def _class_list(y, classes):
         declared = list(classes)
         if len(set(declared)) != len(declared):
             raise ValueError(f"classes contains duplicates: {declared!r}")
-        unknown = [lab for lab in dict.fromkeys(y) if lab not in set(declared)]
+        known = set(declared)
+        unknown = [lab for lab in dict.fromkeys(y) if lab not in known]
         if unknown:
             raise ValueError(f"labels {unknown!r} are not among the declared classes {declared!r}")
         return declared
@@ -149,15 +150,18 @@ class GPClassifier:
         return (X - self.x_mean_) / self.x_scale_
 
     # ----------------------------------------------------------------------------- fit
-    def _start_theta(self, Xs, d, warm):
-        if warm and hasattr(self, "theta_") and len(self.theta_) == (d + 1 if self.ard else 2):
-            return self.theta_.copy()
+    def _start_theta(self, Xs, d):
+        """Data-driven start [log l..., log s2]: the given values, else the median distance and 1."""
         n_ls = d if self.ard else 1
         if self.lengthscale is None:
-            ls = np.full(n_ls, median_distance(Xs, seed=0 if self.random_state is None
-                                               else self.random_state))
+            seed = 0 if self.random_state is None else self.random_state
+            ls = np.full(n_ls, median_distance(Xs, seed=seed))
         else:
-            ls = np.broadcast_to(np.asarray(self.lengthscale, dtype=float), (n_ls,)).copy()
+            ls = np.ravel(np.asarray(self.lengthscale, dtype=float))
+            if ls.size not in (1, n_ls):
+                raise ValueError(f"lengthscale must be a scalar or have {n_ls} values, got "
+                                 f"{self.lengthscale!r}")
+            ls = np.broadcast_to(ls, (n_ls,)).copy()
         s2 = 1.0 if self.signal_variance is None else float(self.signal_variance)
         return make_kernel(self.kernel, ls, s2).theta
 
@@ -224,7 +228,10 @@ class GPClassifier:
         scale = X.std(0) if self.standardize else np.ones(d)
         self.x_scale_ = np.where(scale > 0, scale, 1.0)
         Xs = (X - self.x_mean_) / self.x_scale_
-        theta = self._start_theta(Xs, d, warm)
+        theta_data = self._start_theta(Xs, d)
+        previous = getattr(self, "theta_", None)
+        warm_theta = warm and previous is not None and len(previous) == len(theta_data)
+        theta = previous.copy() if warm_theta else theta_data
         start = self._warm_state(X, codes) if warm else {}
         self.classes_ = _class_array(labels)
         self.n_classes_ = len(labels)
@@ -233,10 +240,11 @@ class GPClassifier:
         if self.n_classes_ == 1:
             self.fit_warnings_.append("only one class: predict_proba returns 1 for it")
             self._set_fit(theta, None, 0.0, 0)
+            self._state_by_row = {}
             return self
         T = self._targets(codes)
         if self.optimize:
-            theta = self._optimize(theta, Xs, T, start, warm)
+            theta = self._optimize(theta, bounds(theta_data), Xs, T, start)
             start = self._last_state
         post = self._engine(make_kernel(self.kernel, *self._split(theta)), Xs, T, start, False)
         self.fit_warnings_ += post.warnings
@@ -262,7 +270,9 @@ class GPClassifier:
     def _split(self, theta):
         return np.exp(theta[:-1]), np.exp(theta[-1])
 
-    def _optimize(self, theta0, Xs, T, start, warm):
+    def _optimize(self, theta0, box, Xs, T, start):
+        """Maximise the engine's LML from theta0 within `box` (bounds around the data-driven
+        start, so repeated warm starts cannot drift); Newton/EP restart from the last state."""
         self._last_state = start
 
         def objective(theta):
@@ -273,7 +283,7 @@ class GPClassifier:
 
         n_ls = len(theta0) - 1
         names = ([f"lengthscale[{j}]" for j in range(n_ls)] if self.ard else ["lengthscale"])
-        theta, _, warnings = maximise(objective, theta0, bounds(theta0), int(self.n_restarts),
+        theta, _, warnings = maximise(objective, theta0, box, int(self.n_restarts),
                                       self.random_state, int(self.max_optimizer_iter),
                                       names + ["signal_variance"])
         self.fit_warnings_ += warnings

@@ -21,7 +21,7 @@ MIN_PRECISION = 1e-12
 def _posterior_moments(K, tau, nu):
     """Posterior mean and marginal variances for sites (tau, nu) (GPML Alg. 3.5 lines 14-16).
 
-    Returns (mu (n,), var (n,), sS = sqrt(tau), L = chol(I + sS K sS), V = L \\ sS K).
+    Returns (mu (n,), var (n,), sS = sqrt(tau), L = chol(I + sS K sS)).
     """
     sS = np.sqrt(tau)
     L, _ = robust_cholesky(np.eye(len(tau)) + sS[:, None] * K * sS[None, :])

@@ -75,7 +75,7 @@ def _state(K, y, link, a):
 
 def fit(K, y, link, a0=None):
     """Fit the binary Laplace posterior; returns a `Posterior` (weights = grad log p at the mode,
-    GPML Alg. 3.2 line 4; factor A = L \\ W^1/2 so that W^1/2 B^-1 W^1/2 = A^T A, line 5)."""
+    GPML Alg. 3.2 line 4; factor A = L^-1 W^1/2 so that W^1/2 B^-1 W^1/2 = A^T A, line 5)."""
     a, n_iter, warnings = find_mode(K, y, link, a0)
     return posterior_from_mode(K, y, link, a, n_iter, warnings)
 

@@ -43,13 +43,18 @@ def _blocks(K, F):
     return Pi, E, M, log_det
 
 
+def _apply_blocks(E, Q):
+    """Block-diagonal product: column c of the result is E_c @ Q[:, c]; E (C, n, n), Q (n, C)."""
+    return np.matmul(E, Q.T[:, :, None])[:, :, 0].T
+
+
 def _newton_target(K, Y, F):
     """Newton target A_new (GPML Alg. 3.3 lines 9-12)."""
     Pi, E, M, _ = _blocks(K, F)
     B = Pi * F - Pi * (Pi * F).sum(1, keepdims=True) + Y - Pi  # line 9: (D - Pi Pi^T) f + y - pi
-    Cv = np.einsum("cij,jc->ic", E, K @ B)  # line 10: c = E K b
+    Cv = _apply_blocks(E, K @ B)  # line 10: c = E K b
     v = cho_solve((M, True), Cv.sum(1), check_finite=False)  # line 11: M^T \ (M \ R^T c)
-    return B - Cv + np.einsum("cij,j->ic", E, v)  # line 11: a = b - c + E R v
+    return B - Cv + _apply_blocks(E, np.repeat(v[:, None], E.shape[0], axis=1))  # a = b - c + E R v
 
 
 def find_mode(K, Y, A0=None):
@@ -82,10 +87,9 @@ def find_mode(K, Y, A0=None):
 
 def _class_precisions(E, M):
     """P_c = E_c - E_c (sum E)^-1 E_c, the diagonal blocks of (K + W^-1)^-1 (GPML eq. 3.41-3.42),
-    and V_c = M \\ E_c. Returns (P (C, n, n), V (C, n, n))."""
+    via V_c = M^-1 E_c. Returns P (C, n, n)."""
     V = np.stack([solve_triangular(M, Ec, lower=True, check_finite=False) for Ec in E])
-    P = E - np.einsum("cki,ckj->cij", V, V)
-    return P, V
+    return E - np.matmul(V.transpose(0, 2, 1), V)
 
 
 def posterior_from_mode(K, Y, A, n_iter=0, warnings=()):
@@ -93,7 +97,7 @@ def posterior_from_mode(K, Y, A, n_iter=0, warnings=()):
     P_c such that Sigma_cc = k** - k*^T P_c k* (lines 5-9)."""
     F = K @ A
     Pi, E, M, log_det = _blocks(K, F)
-    P, _ = _class_precisions(E, M)
+    P = _class_precisions(E, M)
     lml = _objective(A, F, Y) - log_det
     return Posterior(Y - Pi, P, float(lml), n_iter, {"a": A}, list(warnings))
 
@@ -119,24 +123,26 @@ def lml_and_gradient(kernel, X, K, Y, A0=None):
     A, n_iter, warnings = find_mode(K, Y, A0)
     F = K @ A
     Pi, E, M, log_det = _blocks(K, F)
-    P, _ = _class_precisions(E, M)
+    P = _class_precisions(E, M)
     lml = _objective(A, F, Y) - log_det
     n, n_classes = Y.shape
     # per-point (C, C) blocks of Sigma = K - K R K
-    KE = np.einsum("ij,cjk->cik", K, E)  # K E_c
+    KE = np.matmul(K, E)  # K E_c
     T = np.stack([solve_triangular(M, KEc.T, lower=True, check_finite=False) for KEc in KE])
-    S = np.einsum("ani,bni->iab", T, T)  # + K E_c (sum E)^-1 E_c' K, diagonal entries
-    diag_KEK = np.einsum("cij,ij->ic", KE, K)
-    S[:, np.arange(n_classes), np.arange(n_classes)] += np.diag(K)[:, None] - diag_KEK
+    S = np.empty((n, n_classes, n_classes))
+    for c in range(n_classes):  # + K E_c (sum E)^-1 E_c' K, diagonal entries
+        S[:, c, :c + 1] = np.einsum("ki,bki->ib", T[c], T[:c + 1])
+        S[:, :c, c] = S[:, c, :c]
+        S[:, c, c] += np.diag(K) - (KE[c] * K).sum(1)
     S_pi = np.einsum("iab,ib->ia", S, Pi)
     diag_S = np.einsum("iaa->ia", S)
     s = -0.5 * Pi * (diag_S - (Pi * diag_S).sum(1, keepdims=True) - 2.0 * S_pi
                      + 2.0 * (Pi * S_pi).sum(1, keepdims=True))
     # u = s - R K s, with (R q)_c = E_c q_c - E_c (sum E)^-1 sum_c' E_c' q_c'
     Q = K @ s
-    EQ = np.einsum("cij,jc->ic", E, Q)
+    EQ = _apply_blocks(E, Q)
     w = cho_solve((M, True), EQ.sum(1), check_finite=False)
-    U = s - (EQ - np.einsum("cij,j->ic", E, w))
+    U = s - (EQ - _apply_blocks(E, np.repeat(w[:, None], n_classes, axis=1)))
     G = 0.5 * A @ A.T - 0.5 * P.sum(0) + 0.5 * (U @ A.T + A @ U.T)
     grad = kernel.gradient_contractions(X, K, G)
     post = Posterior(Y - Pi, P, float(lml), n_iter, {"a": A}, warnings)

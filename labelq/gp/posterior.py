@@ -7,7 +7,7 @@ inputs with cross-covariance K* (m, n) is
     var  = k** - rowsum((K* @ M) * K*)        (M = `precision`, (n, n) or (C, n, n))
 
 so predictions need one GEMM per chunk and class instead of a triangular solve. Binary
-engines also keep a lower-triangular `factor` A with M = A^T A (A = L \ W^1/2, GPML Alg. 3.2
+engines also keep a lower-triangular `factor` A with M = A^T A (A = L^-1 W^1/2, GPML Alg. 3.2
 line 5 applied once to the identity; Alg. 3.6 line 5 for EP), so var = k** - |A k*|^2 costs one
 triangular matrix product (BLAS trmm, half the flops of the GEMM).
 """

@@ -51,6 +51,12 @@ def cancer_csv(tmp_path) -> Path:
 
 
 @pytest.fixture
+def full_cancer_csv(tmp_path) -> Path:
+    """All 569 rows of scikit-learn's breast-cancer data, with the true class as `truth`."""
+    return dataset_csv(tmp_path / "cancer_all.csv", load_breast_cancer())
+
+
+@pytest.fixture
 def iris_csv(tmp_path) -> Path:
     """scikit-learn's iris data (three classes)."""
     return dataset_csv(tmp_path / "iris.csv", load_iris())

@@ -1,0 +1,108 @@
+"""`history`, `status` advice, `export model` and `simulate` from the command line.
+
+Data: scikit-learn's bundled breast-cancer rows (conftest); the true classes answer for the
+labeller. Contract keys from DESIGN.md.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from labelq.cli.app import app
+from labelq.gp import GPClassifier
+from labelq.store import Store
+
+
+def label_head(cli, truth, n):
+    for _ in range(n):
+        head = cli.json("next", "-n", "1")["queue"][0]["key"]
+        assert cli("label", head, truth[head]).exit_code == 0
+
+
+def test_history_fits_80_columns_without_colour(cancer_store, cancer_csv, monkeypatch):
+    """The table and chart stay within 80 columns and carry no escape codes with NO_COLOR."""
+    monkeypatch.setenv("NO_COLOR", "1")
+    monkeypatch.setenv("COLUMNS", "80")
+    label_head(cancer_store, cancer_store.truth(cancer_csv), 5)
+    result = cancer_store("history")
+    assert result.exit_code == 0, result.output
+    lines = result.stdout.splitlines()
+    assert len(lines) > 5
+    assert all(len(line) <= 80 for line in lines), max(lines, key=len)
+    assert "\x1b[" not in result.stdout
+    assert "mean entropy" in result.stdout
+
+
+def test_history_plot_png(cancer_store, cancer_csv, tmp_path):
+    label_head(cancer_store, cancer_store.truth(cancer_csv), 3)
+    png = tmp_path / "history.png"
+    result = cancer_store("history", "--plot", png)
+    assert result.exit_code == 0, result.output
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG specification)
+
+
+def test_status_flags_thin_classes(cancer_store, cancer_csv):
+    label_head(cancer_store, cancer_store.truth(cancer_csv), 3)
+    advice = cancer_store.json("status")["advice"]
+    assert advice["stop"] is False
+    assert advice["flagged_classes"]  # three labels cannot give both classes three each
+
+
+def test_export_model_reloads_to_the_same_probabilities(cancer_store, cancer_csv, tmp_path):
+    """`export model` writes JSON (no pickle) that GPClassifier.load turns back into the model."""
+    label_head(cancer_store, cancer_store.truth(cancer_csv), 6)
+    out = tmp_path / "model.json"
+    assert cancer_store("export", "model", "-o", out).exit_code == 0
+    doc = json.loads(out.read_text())
+    model = GPClassifier.load(out)
+    with Store.open(cancer_store.db) as store:
+        mean, scale = store.feature_scaling()
+        ids, X = next(store.iter_features())
+        proba = np.vstack([c.probabilities for c in store.scores()])
+    assert doc["feature_names"] == list(store.feature_names)
+    np.testing.assert_allclose(model.predict_proba((X - mean) / scale), proba, rtol=0, atol=1e-9)
+
+
+def test_export_unknown_kind(cancer_store, user_error):
+    user_error(cancer_store("export", "everything"), "everything")
+
+
+@pytest.mark.slow
+def test_simulate_json_entropy_beats_random(cli, full_cancer_csv, tmp_path):
+    """Replay on scikit-learn's breast-cancer data (all 569 rows), 5 seeds, 4 initial labels,
+    60 queries: entropy needs fewer labels than random to reach 99% of the full-pool accuracy
+    (median over seeds; random not reaching it within the budget counts as more)."""
+    png = tmp_path / "curves.png"
+    result = cli.runner.invoke(app, ["simulate", str(full_cancer_csv), "--id", "key",
+                                     "--truth", "truth", "--budget", "60", "--seeds", "5",
+                                     "--initial", "4", "--json", "--plot", str(png)])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(result.stdout)
+    assert set(doc["strategies"]) == {"entropy", "margin", "bald", "random"}
+    for s in doc["strategies"].values():
+        assert set(s) >= {"labels", "accuracy_mean", "accuracy_sd", "labels_to_95",
+                          "labels_to_99"}
+        assert len(s["labels"]) == len(s["accuracy_mean"]) == len(s["accuracy_sd"])
+    assert 0.9 < doc["full_pool_accuracy"] <= 1.0
+    entropy = doc["strategies"]["entropy"]["labels_to_99"]
+    random = doc["strategies"]["random"]["labels_to_99"]
+    assert entropy is not None
+    assert random is None or entropy < random
+    assert png.read_bytes()[:4] == b"\x89PNG"
+
+
+def test_simulate_table(cli, cancer_csv):
+    result = cli.runner.invoke(app, ["simulate", str(cancer_csv), "--id", "key", "--truth",
+                                     "truth", "--budget", "6", "--seeds", "1",
+                                     "--strategies", "entropy,random"])
+    assert result.exit_code == 0, result.output
+    assert "Full-pool accuracy" in result.stdout and "entropy" in result.stdout
+
+
+def test_simulate_bad_truth_column(cli, cancer_csv, user_error):
+    result = cli.runner.invoke(app, ["simulate", str(cancer_csv), "--id", "key", "--truth",
+                                     "nope"])
+    user_error(result, "nope")
