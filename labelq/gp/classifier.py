@@ -12,7 +12,8 @@ from labelq.gp import ep, laplace, multiclass
 from labelq.gp.hyperparameters import bounds, maximise, median_distance
 from labelq.gp.kernels import KERNELS, make_kernel
 from labelq.gp.links import get_link
-from labelq.gp.persistence import load_json, model_from_dict, model_to_dict, save_json
+from labelq.gp.persistence import (class_array, load_json, model_from_dict, model_to_dict,
+                                   save_json)
 from labelq.gp.posterior import latent_cross_covariance, latent_moments
 from labelq.gp.predictive import predictive_probability
 
@@ -53,16 +54,6 @@ def _class_list(y, classes):
         return sorted(observed)
     except TypeError:
         return observed
-
-
-def _class_array(labels):
-    """classes_ as an ndarray; object dtype unless all labels are scalars of one type."""
-    scalar = all(isinstance(lab, (str, int, float, np.generic)) for lab in labels)
-    if scalar and len({type(lab) for lab in labels}) == 1:
-        return np.array(labels)
-    out = np.empty(len(labels), dtype=object)
-    out[:] = labels
-    return out
 
 
 def _label_list(y):
@@ -151,7 +142,7 @@ class GPClassifier:
 
     # ----------------------------------------------------------------------------- fit
     def _start_theta(self, Xs, d):
-        """Data-driven start [log l..., log s2]: the given values, else the median distance and 1."""
+        """Data-driven start [log l..., log s2]: given values, else median distance and 1."""
         n_ls = d if self.ard else 1
         if self.lengthscale is None:
             seed = 0 if self.random_state is None else self.random_state
@@ -224,16 +215,17 @@ class GPClassifier:
         index = {lab: i for i, lab in enumerate(labels)}
         codes = np.array([index[lab] for lab in y_list])
         d = X.shape[1]
-        self.x_mean_ = X.mean(0) if self.standardize else np.zeros(d)
+        x_mean = X.mean(0) if self.standardize else np.zeros(d)
         scale = X.std(0) if self.standardize else np.ones(d)
-        self.x_scale_ = np.where(scale > 0, scale, 1.0)
-        Xs = (X - self.x_mean_) / self.x_scale_
+        x_scale = np.where(scale > 0, scale, 1.0)
+        Xs = (X - x_mean) / x_scale
         theta_data = self._start_theta(Xs, d)
+        self.x_mean_, self.x_scale_ = x_mean, x_scale
         previous = getattr(self, "theta_", None)
         warm_theta = warm and previous is not None and len(previous) == len(theta_data)
         theta = previous.copy() if warm_theta else theta_data
         start = self._warm_state(X, codes) if warm else {}
-        self.classes_ = _class_array(labels)
+        self.classes_ = class_array(labels)
         self.n_classes_ = len(labels)
         self.fit_warnings_ = []
         self.X_train_, self.codes_, self._Xs = X, codes, Xs

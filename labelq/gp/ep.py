@@ -11,7 +11,7 @@ from scipy.linalg import cho_solve, solve_triangular
 from scipy.special import log_ndtr
 
 from labelq.gp.links import normal_hazard
-from labelq.gp.posterior import Posterior, robust_cholesky
+from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky
 
 TOLERANCE = 1e-10
 MAX_ITER = 500
@@ -19,12 +19,13 @@ MIN_PRECISION = 1e-12
 
 
 def _posterior_moments(K, tau, nu):
-    """Posterior mean and marginal variances for sites (tau, nu) (GPML Alg. 3.5 lines 14-16).
+    """Posterior mean and marginal variances for sites (tau, nu) (GPML Alg. 3.5: Sigma and mu
+    recomputed from L and V after a sweep).
 
     Returns (mu (n,), var (n,), sS = sqrt(tau), L = chol(I + sS K sS)).
     """
     sS = np.sqrt(tau)
-    L, _ = robust_cholesky(np.eye(len(tau)) + sS[:, None] * K * sS[None, :])
+    L, _ = robust_cholesky(b_matrix(K, sS))
     V = solve_triangular(L, sS[:, None] * K, lower=True, check_finite=False)
     var = np.diag(K) - (V * V).sum(0)
     mu = K @ nu - V.T @ (V @ nu)  # Sigma nu with Sigma = K - V^T V
@@ -103,7 +104,7 @@ def find_sites(K, y, tau0=None, nu0=None):
 
 
 def _mean_weights(K, nu, sS, L):
-    """Mean weights b = nu - sS B^-1 sS K nu (GPML Alg. 3.6 lines 3-4, Alg. 5.2 line 6)."""
+    """Mean weights b = nu - sS B^-1 sS K nu (GPML Alg. 3.6 z and f*-bar; the b of Alg. 5.2)."""
     return nu - sS * cho_solve((L, True), sS * (K @ nu), check_finite=False)
 
 
@@ -111,7 +112,8 @@ def posterior_from_sites(K, y, tau, nu, n_iter=0, warnings=()):
     """The `Posterior` for given sites (used by `fit` and when reloading a model)."""
     value, _, _, sS, L = log_z(K, y, tau, nu)
     b = _mean_weights(K, nu, sS, L)
-    A = solve_triangular(L, np.diag(sS), lower=True, check_finite=False)  # Alg. 3.6 line 5
+    # Alg. 3.6: v := L \ (S^1/2 k*)
+    A = solve_triangular(L, np.diag(sS), lower=True, check_finite=False)
     return Posterior(b, None, value, n_iter, {"tau": tau, "nu": nu}, list(warnings), factor=A)
 
 
@@ -127,7 +129,8 @@ def lml_and_gradient(kernel, X, K, y, tau0=None, nu0=None):
     tau, nu, n_iter, warnings = find_sites(K, y, tau0, nu0)
     value, _, _, sS, L = log_z(K, y, tau, nu)
     b = _mean_weights(K, nu, sS, L)
-    R = sS[:, None] * cho_solve((L, True), np.diag(sS), check_finite=False)  # Alg. 5.2 line 7
-    grad = kernel.gradient_contractions(X, K, 0.5 * (np.outer(b, b) - R))  # line 8
+    R = sS[:, None] * cho_solve((L, True), np.diag(sS), check_finite=False)  # Alg. 5.2: R
+    # Alg. 5.2: 1/2 tr((b b^T - R) dK)
+    grad = kernel.gradient_contractions(X, K, 0.5 * (np.outer(b, b) - R))
     post = Posterior(b, R, value, n_iter, {"tau": tau, "nu": nu}, warnings)
     return value, grad, post

@@ -29,8 +29,8 @@ def _scaled_sqdist(U, V):
 class StationaryKernel:
     """Base class: k(x, z) = s2 * g(r), r the lengthscale-scaled distance.
 
-    Subclasses give `_profile(r2)` -> g (may overwrite r2) and `_lengthscale_factor(r2)` -> Q / s2;
-    a subclass may override `__call__` with a faster equivalent.
+    Subclasses give `_profile(r2)` -> g (may overwrite r2) and `_lengthscale_factor(r2)` -> Q / s2,
+    or override `__call__` and `_lengthscale_weight` with closed forms (squared exponential).
     """
 
     name = ""
@@ -78,11 +78,14 @@ class StationaryKernel:
         """
         U = self._scale(X)
         U = U - U.mean(0)  # translation invariant; centring limits cancellation
-        r2 = _scaled_sqdist(U, U)
-        H = G * (self.signal_variance * self._lengthscale_factor(r2))
+        H = G * self._lengthscale_weight(U, K)
         per_dim = 2.0 * ((U * U) * H.sum(1)[:, None]).sum(0) - 2.0 * (U * (H @ U)).sum(0)
         grad_ls = per_dim if self.lengthscale.size == U.shape[1] else np.array([per_dim.sum()])
         return np.append(grad_ls, (G * K).sum())  # dK / d log s2 = K
+
+    def _lengthscale_weight(self, U, K):
+        """Q with dK / d log l_k = Q * D_k, from the scaled inputs U (n, p) or from K."""
+        return self.signal_variance * self._lengthscale_factor(_scaled_sqdist(U, U))
 
 
 class SquaredExponential(StationaryKernel):
@@ -104,11 +107,9 @@ class SquaredExponential(StationaryKernel):
             np.fill_diagonal(K, self.signal_variance)
         return K
 
-    def _profile(self, r2):
-        return np.exp(-0.5 * r2)
-
-    def _lengthscale_factor(self, r2):
-        return np.exp(-0.5 * r2)
+    def _lengthscale_weight(self, U, K):
+        """Q = K: d/d log l_k of exp(-sum_k D_k / 2) is exp(...) D_k."""
+        return K
 
 
 class Matern52(StationaryKernel):

@@ -7,7 +7,7 @@ Targets y are coded -1 / +1.
 import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
 
-from labelq.gp.posterior import Posterior, robust_cholesky
+from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky
 
 TOLERANCE = 1e-10
 MAX_ITER = 100
@@ -20,13 +20,13 @@ def _objective(a, f, y, link):
 
 
 def _newton_direction(K, y, f, link):
-    """Newton target a_new for the current f (GPML Alg. 3.1 lines 4-8)."""
+    """Newton target a_new for the current f (GPML Alg. 3.1 lines 4-7)."""
     _, d1, d2, _ = link.derivatives(y, f)
     W = np.maximum(-d2, 0.0)  # line 4; W >= 0 for log-concave links, guard rounding
     sW = np.sqrt(W)
-    L, _ = robust_cholesky(np.eye(len(f)) + sW[:, None] * K * sW[None, :])  # line 5
+    L, _ = robust_cholesky(b_matrix(K, sW))  # line 5
     b = W * f + d1  # line 6
-    return b - sW * cho_solve((L, True), sW * (K @ b), check_finite=False)  # lines 7-8
+    return b - sW * cho_solve((L, True), sW * (K @ b), check_finite=False)  # line 7
 
 
 def find_mode(K, y, link, a0=None):
@@ -50,7 +50,7 @@ def find_mode(K, y, link, a0=None):
         t = 1.0
         for _ in range(MAX_HALVINGS):
             a_new = a + t * step
-            f_new = K @ a_new  # line 9
+            f_new = K @ a_new  # line 8
             psi_new = _objective(a_new, f_new, y, link)
             if psi_new >= psi - 1e-12 * abs(psi):
                 break
@@ -67,10 +67,10 @@ def _state(K, y, link, a):
     f = K @ a
     log_p, d1, d2, d3 = link.derivatives(y, f)
     sW = np.sqrt(np.maximum(-d2, 0.0))
-    L, _ = robust_cholesky(np.eye(len(f)) + sW[:, None] * K * sW[None, :])
+    L, _ = robust_cholesky(b_matrix(K, sW))
     # GPML Alg. 3.1 line 10: log q(y|X) = -a^T f / 2 + sum log p(y|f) - sum log L_ii
     lml = -0.5 * a @ f + log_p.sum() - np.log(np.diag(L)).sum()
-    return f, d1, d3, sW, L, lml
+    return d1, d3, sW, L, lml
 
 
 def fit(K, y, link, a0=None):
@@ -82,7 +82,7 @@ def fit(K, y, link, a0=None):
 
 def posterior_from_mode(K, y, link, a, n_iter=0, warnings=()):
     """Build the `Posterior` from mode weights a (used by `fit` and when reloading a model)."""
-    f, d1, _, sW, L, lml = _state(K, y, link, a)
+    d1, _, sW, L, lml = _state(K, y, link, a)
     A = solve_triangular(L, np.diag(sW), lower=True, check_finite=False)  # Alg. 3.2 line 5
     return Posterior(d1, None, float(lml), n_iter, {"a": a}, list(warnings), factor=A)
 
@@ -93,14 +93,15 @@ def lml_and_gradient(kernel, X, K, y, link, a0=None):
     GPML Alg. 5.1. Returns (lml, grad (p + 1,), posterior).
     """
     a, n_iter, warnings = find_mode(K, y, link, a0)
-    f, d1, d3, sW, L, lml = _state(K, y, link, a)
-    R = sW[:, None] * cho_solve((L, True), np.diag(sW), check_finite=False)  # Alg. 5.1 line 4
-    C = solve_triangular(L, sW[:, None] * K, lower=True, check_finite=False)  # line 5
-    # line 7, implicit part: d log q / d f_i = -1/2 Sigma_ii dW_ii/df_i with W = -d2, hence
+    d1, d3, sW, L, lml = _state(K, y, link, a)
+    R = sW[:, None] * cho_solve((L, True), np.diag(sW), check_finite=False)  # Alg. 5.1: R
+    C = solve_triangular(L, sW[:, None] * K, lower=True, check_finite=False)  # Alg. 5.1: C
+    # Alg. 5.1 s2, implicit part: d log q / d f_i = -1/2 Sigma_ii dW_ii/df_i with W = -d2, hence
     # +1/2 Sigma_ii d3_i, Sigma = (K^-1 + W)^-1 (GPML eq. 5.23; sign from W = -grad grad log p)
     s2 = 0.5 * (np.diag(K) - (C * C).sum(0)) * d3
-    u = s2 - R @ (K @ s2)  # s2^T (b - K R b) = (s2 - R K s2)^T dK d1 (lines 10-11)
-    G = 0.5 * np.outer(d1, d1) - 0.5 * R + 0.5 * (np.outer(u, d1) + np.outer(d1, u))  # line 9
+    u = s2 - R @ (K @ s2)  # s2^T (b - K R b) = (s2 - R K s2)^T dK d1 (Alg. 5.1 s3)
+    # Alg. 5.1 s1 + s2^T s3
+    G = 0.5 * np.outer(d1, d1) - 0.5 * R + 0.5 * (np.outer(u, d1) + np.outer(d1, u))
     grad = kernel.gradient_contractions(X, K, G)
     post = Posterior(d1, R, float(lml), n_iter, {"a": a}, warnings)
     return float(lml), grad, post

@@ -10,7 +10,7 @@ import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
 from scipy.special import logsumexp, softmax
 
-from labelq.gp.posterior import Posterior, robust_cholesky
+from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky
 
 TOLERANCE = 1e-10
 MAX_ITER = 100
@@ -18,13 +18,13 @@ MAX_HALVINGS = 30
 
 
 def _objective(A, F, Y):
-    """Psi = -a^T f / 2 + y^T f - sum_i log sum_c exp f_i^c (GPML Alg. 3.3 line 11 without the
-    determinant terms)."""
+    """Psi = -a^T f / 2 + y^T f - sum_i log sum_c exp f_i^c (the log q of GPML Alg. 3.3
+    without the determinant terms)."""
     return -0.5 * (A * F).sum() + (Y * F).sum() - logsumexp(F, axis=1).sum()
 
 
 def _blocks(K, F):
-    """Per-class pieces of GPML Alg. 3.3 lines 4-8 at latent F.
+    """Per-class pieces of GPML Alg. 3.3 (pi, L, E_c, z_c, M) at latent F.
 
     Returns (Pi (n, C), E (C, n, n), M lower Cholesky of sum_c E_c, log|B|).
     """
@@ -32,14 +32,14 @@ def _blocks(K, F):
     Pi = softmax(F, axis=1)
     E = np.empty((n_classes, n, n))
     log_det = 0.0
-    eye = np.eye(n)
     for c in range(n_classes):
         sD = np.sqrt(Pi[:, c])
-        L, _ = robust_cholesky(eye + sD[:, None] * K * sD[None, :])  # line 5
-        E[c] = sD[:, None] * cho_solve((L, True), np.diag(sD), check_finite=False)  # line 6
-        log_det += np.log(np.diag(L)).sum()  # line 7, z_c
-    M, _ = robust_cholesky(E.sum(0))  # line 8
-    log_det += np.log(np.diag(M)).sum()  # log|B| = sum_c z_c + sum_i log M_ii (line 11)
+        L, _ = robust_cholesky(b_matrix(K, sD))  # L := chol(I + D_c^1/2 K D_c^1/2)
+        # E_c := D_c^1/2 L^T \ (L \ D_c^1/2)
+        E[c] = sD[:, None] * cho_solve((L, True), np.diag(sD), check_finite=False)
+        log_det += np.log(np.diag(L)).sum()  # z_c := sum log L_ii
+    M, _ = robust_cholesky(E.sum(0))  # M := chol(sum_c E_c)
+    log_det += np.log(np.diag(M)).sum()  # log|B| = sum_c z_c + sum_i log M_ii (log q line)
     return Pi, E, M, log_det
 
 
@@ -49,12 +49,14 @@ def _apply_blocks(E, Q):
 
 
 def _newton_target(K, Y, F):
-    """Newton target A_new (GPML Alg. 3.3 lines 9-12)."""
+    """Newton target A_new (GPML Alg. 3.3, the b, c and a updates)."""
     Pi, E, M, _ = _blocks(K, F)
-    B = Pi * F - Pi * (Pi * F).sum(1, keepdims=True) + Y - Pi  # line 9: (D - Pi Pi^T) f + y - pi
-    Cv = _apply_blocks(E, K @ B)  # line 10: c = E K b
-    v = cho_solve((M, True), Cv.sum(1), check_finite=False)  # line 11: M^T \ (M \ R^T c)
-    return B - Cv + _apply_blocks(E, np.repeat(v[:, None], E.shape[0], axis=1))  # a = b - c + E R v
+    # b := (D - Pi Pi^T) f + y - pi (eq. 3.39)
+    B = Pi * F - Pi * (Pi * F).sum(1, keepdims=True) + Y - Pi
+    Cv = _apply_blocks(E, K @ B)  # c := E K b
+    v = cho_solve((M, True), Cv.sum(1), check_finite=False)  # M^T \ (M \ R^T c)
+    # a := b - c + E R v
+    return B - Cv + _apply_blocks(E, np.repeat(v[:, None], E.shape[0], axis=1))
 
 
 def find_mode(K, Y, A0=None):
@@ -73,7 +75,7 @@ def find_mode(K, Y, A0=None):
         t = 1.0
         for _ in range(MAX_HALVINGS):
             A_new = A + t * step
-            F_new = K @ A_new  # line 12
+            F_new = K @ A_new  # f := K a
             psi_new = _objective(A_new, F_new, Y)
             if psi_new >= psi - 1e-12 * abs(psi):
                 break
@@ -93,8 +95,8 @@ def _class_precisions(E, M):
 
 
 def posterior_from_mode(K, Y, A, n_iter=0, warnings=()):
-    """Posterior for predictions (GPML Alg. 3.4): weights y - pi (line 4), per-class precisions
-    P_c such that Sigma_cc = k** - k*^T P_c k* (lines 5-9)."""
+    """Posterior for predictions (GPML Alg. 3.4): weights y - pi (mean mu*_c = (y_c - pi_c)^T k*),
+    per-class precisions P_c such that Sigma_cc = k** - k*^T P_c k* (its b, c and Sigma steps)."""
     F = K @ A
     Pi, E, M, log_det = _blocks(K, F)
     P = _class_precisions(E, M)

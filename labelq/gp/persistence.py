@@ -12,6 +12,16 @@ SETTINGS = ("kernel", "link", "inference", "ard", "optimize", "lengthscale", "si
             "standardize", "n_restarts", "random_state", "max_optimizer_iter")
 
 
+def class_array(labels):
+    """classes_ as an ndarray; object dtype unless all labels are scalars of one type."""
+    scalar = all(isinstance(lab, (str, int, float, np.generic)) for lab in labels)
+    if scalar and len({type(lab) for lab in labels}) == 1:
+        return np.array(labels)
+    out = np.empty(len(labels), dtype=object)
+    out[:] = labels
+    return out
+
+
 def _json_scalar(value, what):
     """Python scalar for a JSON file; TypeError naming the value otherwise."""
     if isinstance(value, np.generic):
@@ -50,14 +60,13 @@ def model_to_dict(model):
 
 def model_from_dict(cls, d):
     """Rebuild a fitted `cls` instance from `model_to_dict` output."""
-    if not isinstance(d, dict) or d.get("format") != FORMAT:
-        raise ValueError(f"not a stored GPClassifier (format {d.get('format') if isinstance(d, dict) else None!r})")
-    from labelq.gp.classifier import _class_array  # storage sits below the estimator
-
+    found = d.get("format") if isinstance(d, dict) else None
+    if found != FORMAT:
+        raise ValueError(f"not a stored GPClassifier: format {found!r}, expected {FORMAT!r}")
     model = cls(**d["settings"])
     labels = list(d["classes"])
     model._check_settings(len(labels))
-    model.classes_ = _class_array(labels)
+    model.classes_ = class_array(labels)
     model.n_classes_ = len(labels)
     index = {lab: i for i, lab in enumerate(labels)}
     model.codes_ = np.array([index[lab] for lab in d["y"]], dtype=int)

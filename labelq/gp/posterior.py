@@ -76,17 +76,29 @@ def latent_cross_covariance(post, Kxz, Kx, Kz):
     return Kxz - Kx @ post.precision @ Kz.T
 
 
+def b_matrix(K, s):
+    """B = I + S K S with S = diag(s) (GPML eq. 3.26 with s = W^1/2; Alg. 3.5 with s = sqrt(tau)),
+    built in one buffer; its eigenvalues are >= 1, so its Cholesky factor is well conditioned."""
+    B = K * s[:, None]
+    B *= s[None, :]
+    B[np.diag_indices_from(B)] += 1.0
+    return B
+
+
 def robust_cholesky(A):
     """Lower Cholesky factor of the symmetric positive definite A, adding growing jitter to the
     diagonal when the plain factorisation fails (common practice, no published source).
 
     Returns (L, jitter) with jitter = 0.0 when none was needed.
     """
-    jitter = 0.0
-    scale = max(float(np.mean(np.diag(A))), 1e-300)
-    for _ in range(10):
+    try:
+        return cholesky(A, lower=True, check_finite=False), 0.0
+    except LinAlgError:
+        pass
+    jitter = max(float(np.mean(np.diag(A))), 1e-300) * 1e-10
+    for _ in range(9):
         try:
             return cholesky(A + jitter * np.eye(A.shape[0]), lower=True, check_finite=False), jitter
         except LinAlgError:
-            jitter = scale * 1e-10 if jitter == 0.0 else jitter * 10.0
-    raise ValueError("matrix is not positive definite even with jitter 1e-1 times its mean diagonal")
+            jitter *= 10.0
+    raise ValueError("matrix is not positive definite even with jitter 0.1 x its mean diagonal")

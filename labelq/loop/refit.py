@@ -271,9 +271,16 @@ def _spread_head(clf, state, scores, strategy, rows, skipped):
     link = settings.LINK if c == 2 else "softmax"
     mean = scores["mean"][rows]
     var = scores["var"][rows]
+    cache = {}
 
     def cross_cov(shortlist, j):
-        return clf.latent_cross_cov(state.X[rows[shortlist]], state.X[rows[[j]]])[:, 0]
+        # select_batch passes the same shortlist on every call: its posterior covariance is
+        # computed once (one kernel block and one product) and read column by column.
+        if "cov" not in cache:
+            Xs = state.X[rows[shortlist]]
+            cache["cov"] = clf.latent_cross_cov(Xs, Xs)
+            cache["where"] = {int(r): i for i, r in enumerate(shortlist)}
+        return cache["cov"][:, cache["where"][int(j)]]
 
     picks = select_batch(strategy, scores["proba"][rows], mean, var, link,
                          settings.HEAD_SIZE, cross_cov, state.ids[rows],

@@ -35,7 +35,6 @@ from sklearn.datasets import make_classification
 
 from labelq.loop import actions
 from labelq.loop.refit import ensure_fit
-from labelq.store import Store
 
 CLASSES = ("no", "yes")
 
