@@ -6,6 +6,7 @@ from pathlib import Path
 from typing import Annotated, Optional
 
 import typer
+from rich.markup import escape
 
 from labelq.acquire import STRATEGIES
 from labelq.errors import LabelqError
@@ -53,7 +54,8 @@ def init(
         if json:
             render.print_json({"db": str(store.path), "classes": store.classes})
         else:
-            render.console().print(f"Created {store.path} with classes {', '.join(store.classes)}.")
+            render.console().print(f"Created {store.path} with classes {', '.join(store.classes)}.",
+                                   markup=False)
 
 
 @app.command("import")
@@ -140,7 +142,7 @@ def show(
     status = (f"labelled {view['label']}" if view["label"] else
               "skipped" if view["skipped"] else f"queue rank {view['rank']}" if view["rank"] else
               "unranked")
-    con.print(f"[bold]{view['key']}[/bold] ({status})")
+    con.print(f"[bold]{escape(view['key'])}[/bold] ({escape(status)})")
     con.print(render.key_value_table(list(view["meta"].items())
                                      + [(k, render.fmt_num(v, 4)) for k, v in view["features"].items()]))
     if view["p"]:
@@ -175,7 +177,7 @@ def label(
                       progress=lambda stage, d, t: update(d, t, stage))
         queue = actions.next_queue(store, n, strategy, holder=who)
         if not json:
-            render.console().print(f"Labelled {key} as {class_}.")
+            render.console().print(f"Labelled {key} as {class_}.", markup=False)
         render_queue(store, queue, json)
 
 
@@ -193,7 +195,8 @@ def skip(
     if json:
         render.print_json({"skipped": key})
     else:
-        render.console().print(f"Skipped {key}; it now waits at the bottom of the queue.")
+        render.console().print(f"Skipped {key}; it now waits at the bottom of the queue.",
+                               markup=False)
 
 
 @app.command()
@@ -210,9 +213,9 @@ def undo(
     if json:
         render.print_json({"undone": event.kind, "key": event.key, "class": event.class_})
     elif event.kind == "label":
-        render.console().print(f"Took back the label {event.class_} on {event.key}.")
+        render.console().print(f"Took back the label {event.class_} on {event.key}.", markup=False)
     else:
-        render.console().print(f"Took back the skip of {event.key}.")
+        render.console().print(f"Took back the skip of {event.key}.", markup=False)
 
 
 @app.command()
@@ -328,7 +331,7 @@ def check(
         render.print_json({"ok": not problems, "problems": problems})
     elif problems:
         for p in problems:
-            render.console().print(f"problem: {p}")
+            render.console().print(f"problem: {p}", markup=False)
     else:
         render.console().print("The store is consistent.")
     if problems:

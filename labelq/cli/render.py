@@ -8,6 +8,7 @@ import sys
 from contextlib import contextmanager
 
 from rich.console import Console
+from rich.markup import escape
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
@@ -92,12 +93,12 @@ def queue_table(queue, classes, meta_columns) -> Table:
     table.add_column("p", justify="right")
     table.add_column(SCORE_NAMES.get(queue.strategy, "score"), justify="right")
     for name in meta_columns:
-        table.add_column(name, overflow="fold")
+        table.add_column(escape(name), overflow="fold")
     for row in queue.rows:
         claimed = "" if not getattr(row, "skipped", False) else " (skipped)"
-        table.add_row(str(row.rank), row.key + claimed, classes[int(row.predicted)],
+        table.add_row(str(row.rank), escape(row.key) + claimed, escape(classes[int(row.predicted)]),
                       fmt_p(row.p_top), fmt_num(row.score),
-                      *[str(row.meta.get(m, "")) for m in meta_columns])
+                      *[escape(str(row.meta.get(m, ""))) for m in meta_columns])
     return table
 
 
@@ -107,7 +108,7 @@ def key_value_table(pairs) -> Table:
     table.add_column(style="bold")
     table.add_column()
     for k, v in pairs:
-        table.add_row(str(k), str(v))
+        table.add_row(escape(str(k)), escape(str(v)))
     return table
 
 
@@ -134,7 +135,7 @@ def probability_table(view) -> Table:
     table.add_column("p", justify="right")
     table.add_column("5-95% interval", justify="right")
     for c, d in view["p"].items():
-        table.add_row(c, fmt_p(d["p"]), f"{fmt_p(d['low'])} - {fmt_p(d['high'])}")
+        table.add_row(escape(c), fmt_p(d["p"]), f"{fmt_p(d['low'])} - {fmt_p(d['high'])}")
     return table
 
 
@@ -146,13 +147,13 @@ def nearest_table(nearest) -> Table:
     table.add_column("class")
     table.add_column("distance (sd)", justify="right")
     for n in nearest:
-        table.add_row(n["key"], n["class"], fmt_num(n["distance"], 2))
+        table.add_row(escape(n["key"]), escape(n["class"]), fmt_num(n["distance"], 2))
     return table
 
 
 def print_status(con: Console, doc) -> None:
     """The `status` screen: counts, labels per class, last fit, snapshot, advice, caution."""
-    con.print(f"[bold]{doc['db']}[/bold]: {doc['candidates']:,} candidates, "
+    con.print(f"[bold]{escape(doc['db'])}[/bold]: {doc['candidates']:,} candidates, "
               f"{doc['labelled']:,} labelled, {doc['skipped']:,} skipped")
     con.print(key_value_table([(f"labels {c}", n) for c, n in doc["classes"].items()]))
     fit = doc["last_fit"]
@@ -166,7 +167,7 @@ def print_status(con: Console, doc) -> None:
                   + (", hyperparameters re-learnt" if fit["hyperparameters_relearnt"] else "")
                   + ")" + (" - stale, refits on the next command" if doc["stale"] else ""))
         for w in fit["warnings"] or []:
-            con.print(f"  note: {w}")
+            con.print(f"  note: {w}", markup=False)
     snap = doc["snapshot"]
     if snap is not None:
         kappa = snap["kappa"]
@@ -176,7 +177,7 @@ def print_status(con: Console, doc) -> None:
             ("expected accuracy", f"{snap['expected_accuracy']:.3f} (the model's own estimate)"),
             ("agreement with previous fit", "-" if kappa is None else f"kappa {kappa:.3f}"),
         ]))
-    con.print(f"[bold]Advice:[/bold] {doc['advice']['message']}")
+    con.print(f"[bold]Advice:[/bold] {escape(doc['advice']['message'])}")
     con.print(CAUTION, style="dim")
 
 
@@ -206,7 +207,7 @@ def print_simulation(con: Console, result, chart: str) -> None:
                           ("area under curve", "right")]:
         table.add_column(name, justify=justify)
     for name, s in result["strategies"].items():
-        table.add_row(name, fmt_num(s["accuracy_mean"][-1]), fmt_num(s["accuracy_sd"][-1]),
+        table.add_row(escape(name), fmt_num(s["accuracy_mean"][-1]), fmt_num(s["accuracy_sd"][-1]),
                       "-" if s["labels_to_95"] is None else str(s["labels_to_95"]),
                       "-" if s["labels_to_99"] is None else str(s["labels_to_99"]),
                       fmt_num(s["auc"]))

@@ -5,6 +5,7 @@ from __future__ import annotations
 import sys
 
 from rich.console import Console
+from rich.markup import escape
 
 from labelq.cli import render
 from labelq.errors import LabelqError
@@ -23,12 +24,12 @@ HELP = "a class name or number, s skip, u undo, ? details, q quit"
 def _card(con: Console, queue, classes) -> None:
     """The candidate on offer: key, metadata, prediction, probabilities, score and why."""
     row = queue.rows[0]
-    con.rule(f"[bold]{row.key}[/bold]  (rank {row.rank})")
+    con.rule(f"[bold]{escape(row.key)}[/bold]  (rank {row.rank})")
     if row.meta:
-        con.print("  ".join(f"{k}: {v}" for k, v in row.meta.items()))
+        con.print("  ".join(f"{k}: {v}" for k, v in row.meta.items()), markup=False)
     probs = "  ".join(f"{i + 1}) {c} {render.fmt_p(p)}" for i, (c, p)
                       in enumerate(zip(classes, row.probabilities)))
-    con.print(f"predicted {classes[int(row.predicted)]}    {probs}")
+    con.print(f"predicted {classes[int(row.predicted)]}    {probs}", markup=False)
     if queue.cold_start:
         con.print("why: cold start - a candidate far from those already seen, to cover the pool")
     else:
@@ -78,7 +79,8 @@ def run_session(store, by: str, strategy=None) -> dict:
                 elif answer == "u":
                     step = actions.undo(store, by, strategy, session_id=session_id)
                     tally["undos"] += 1
-                    con.print(f"took back the {step.event.kind} on {step.event.key}")
+                    con.print(f"took back the {step.event.kind} on {step.event.key}",
+                              markup=False)
                 elif answer == "?":
                     view = reports.candidate_view(store, row.key)
                     con.print(render.key_value_table(
@@ -89,11 +91,11 @@ def run_session(store, by: str, strategy=None) -> dict:
                     actions.label(store, row.key, cls, by, strategy=strategy,
                                   session_id=session_id)
                     tally["labels"] += 1
-                    con.print(f"labelled {row.key} as {cls}")
+                    con.print(f"labelled {row.key} as {cls}", markup=False)
                 else:
-                    con.print(f"not understood: {answer!r}; type {HELP}")
+                    con.print(f"not understood: {answer!r}; type {HELP}", markup=False)
             except LabelqError as exc:
-                con.print(f"[bold]note:[/bold] {exc}")
+                con.print(f"[bold]note:[/bold] {escape(str(exc))}")
     finally:
         store.end_session(session_id)
     last = reports.latest_mean_entropy(store)

@@ -49,7 +49,7 @@ def run_demo(directory: Path) -> None:
             actions.label(store, row.key, grade, "demo", note="demo: hidden grade")
             guess = GRADES[int(row.predicted)]
             how = "cold start" if queue.cold_start else f"model said {guess} (p {render.fmt_p(row.p_top)})"
-            con.print(f"  labelled {row.key} as {grade:<6}  [{how}]")
+            con.print(f"  labelled {row.key} as {grade:<6}  ({how})", markup=False)
         con.print()
         queue = actions.next_queue(store, 5)
         con.print(render.queue_heading(queue))

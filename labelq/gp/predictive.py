@@ -23,6 +23,7 @@ _GH_W = _GH_W / np.sqrt(np.pi)
 _GH_T = _GH_T * np.sqrt(2.0)
 _TRAP_G = np.arange(-36.0, 36.0 + 0.375, 0.75)
 _TRAP_W = 0.75 * expit(_TRAP_G) * expit(-_TRAP_G)
+_TRAP_W /= _TRAP_W.sum()  # the weights of a density: sum to 1 exactly, so E[sigma] stays <= 1
 _SOFTMAX_SAMPLES = 2048
 _SOFTMAX_SEED = 0
 _sobol_cache = {}
@@ -52,7 +53,7 @@ def _logistic_average(mean, var):
     if np.any(wide):
         m, sd = mean[wide], s[wide]
         out[wide] = ndtr((m[:, None] - _TRAP_G) / sd[:, None]) @ _TRAP_W
-    return out
+    return np.clip(out, 0.0, 1.0, out=out)
 
 
 def _sobol_normals(n_classes, n_points=_SOFTMAX_SAMPLES):

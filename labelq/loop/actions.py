@@ -85,6 +85,10 @@ def undo(store: Store, by: str, strategy: Optional[str] = None, session_id=None,
     return StepResult(event, ensure_fit(store, strategy, session_id=session_id, progress=progress))
 
 
+CLAIM_ATTEMPTS = 5
+"""How often `next_queue` re-reads the queue when the head it read was claimed meanwhile."""
+
+
 @dataclass
 class QueueRow:
     """One candidate in a queue as shown: its rank, class probabilities and the strategy's score."""
@@ -144,9 +148,14 @@ def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
     shown = info.get("strategy", fit.strategy)
     cold = bool(info.get("cold_start"))
     skipped = set(store.skipped_ids().tolist())
+    for _ in range(CLAIM_ATTEMPTS):
+        found = store.queue(n, holder=holder)
+        # The claim is its own write transaction: when another person claimed the same head
+        # between our read and our claim, read the queue again (it now leaves theirs out).
+        if not (holder and found) or store.claim([found[0].candidate_id], holder,
+                                                 seconds=settings.CLAIM_SECONDS):
+            break
     rows = [QueueRow(r.rank, r.candidate_id, r.key, r.predicted, r.probabilities, r.p_top,
                      0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped)
-            for r in store.queue(n, holder=holder)]
-    if holder and rows:
-        store.claim([rows[0].candidate_id], holder, seconds=settings.CLAIM_SECONDS)
+            for r in found]
     return Queue(rows, shown, cold, fit)

@@ -53,13 +53,18 @@ def load_state(store, mark: Optional[int] = None) -> PoolState:
     if mark is None:
         mark = store.event_mark()
     mean, scale = store.feature_scaling()
-    ids_parts, x_parts = [], []
-    for ids, X in store.iter_features(max_mark=mark):
-        ids_parts.append(ids)
-        x_parts.append((X - mean) / scale)
-    d = len(mean)
-    ids = np.concatenate(ids_parts) if ids_parts else np.zeros(0, dtype=np.int64)
-    X = np.vstack(x_parts) if x_parts else np.zeros((0, d))
+    n_max = store.counts()["candidates"]
+    ids = np.empty(n_max, dtype=np.int64)
+    X = np.empty((n_max, len(mean)))
+    filled = 0
+    for chunk_ids, chunk in store.iter_features(max_mark=mark):
+        # filled chunk by chunk into one array: no second copy of a large pool
+        end = filled + len(chunk_ids)
+        ids[filled:end] = chunk_ids
+        np.subtract(chunk, mean, out=X[filled:end])
+        X[filled:end] /= scale
+        filled = end
+    ids, X = ids[:filled], X[:filled]
     labels = store.labels_as_of(mark)
     return PoolState(
         mark=mark,

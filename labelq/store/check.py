@@ -64,7 +64,17 @@ def _score_problems(connection: Connection) -> list[str]:
     stray = connection.execute(
         text("SELECT COUNT(*) FROM scores WHERE fit_id IS NOT (SELECT MAX(id) FROM fits)")
     ).scalar_one()
-    return [f"{stray} scores do not belong to the last fit"] if stray else []
+    missing = connection.execute(
+        text(
+            "SELECT COUNT(*) FROM candidates c WHERE c.added_mark <= (SELECT event_mark FROM fits"
+            " WHERE id = (SELECT MAX(id) FROM fits)) AND NOT EXISTS (SELECT 1 FROM scores s"
+            " WHERE s.candidate_id = c.id AND s.fit_id = (SELECT MAX(id) FROM fits))"
+        )
+    ).scalar_one()
+    problems = [f"{stray} scores do not belong to the last fit"] if stray else []
+    if missing:
+        problems.append(f"{missing} candidates have no score under the last fit")
+    return problems
 
 
 def _event_problems(connection: Connection, table: str) -> list[str]:

@@ -23,6 +23,8 @@ _INSERT_SCORE = (
 _SCORE_COLUMNS = (
     "candidate_id, probabilities, predicted, p_top, p_low, p_high, entropy, margin, bald, priority, rank"
 )
+_WRITE_CHUNK = 50_000
+"""Score rows handed to one executemany call."""
 _LAST_FIT = "(SELECT MAX(id) FROM fits)"
 """SQL for the id of the last fit. Only its scores are kept, so full reads filter on ``+fit_id``
 (the ``+`` bars the fit_id index) and walk the rank or primary-key index instead of sorting."""
@@ -82,18 +84,23 @@ class FitsMixin(StoreCore):
                     text("UPDATE fits SET model = NULL WHERE model IS NOT NULL AND id <= :last"),
                     {"last": fit_id - keep_models},
                 )
-            ranks = [None if r is None or r < 0 else int(r) for r in np.asarray(rank, dtype=object).tolist()]
-            driver(connection).executemany(
-                _INSERT_SCORE,
-                zip(
-                    np.asarray(candidate_ids, dtype=np.int64).tolist(),
-                    repeat(fit_id, n),
-                    row_blobs(probabilities),
-                    columns[0].astype(np.int64).tolist(),
-                    *(column.astype(np.float64).tolist() for column in columns[1:]),
-                    ranks,
-                ),
-            )
+            rank = np.asarray(rank, dtype=object)
+            ids = np.asarray(candidate_ids, dtype=np.int64)
+            raw = driver(connection)
+            for start in range(0, n, _WRITE_CHUNK):
+                # chunked so that the Python rows built for executemany stay small on big pools
+                part = slice(start, start + _WRITE_CHUNK)
+                raw.executemany(
+                    _INSERT_SCORE,
+                    zip(
+                        ids[part].tolist(),
+                        repeat(fit_id),
+                        row_blobs(probabilities[part]),
+                        columns[0][part].astype(np.int64).tolist(),
+                        *(column[part].astype(np.float64).tolist() for column in columns[1:]),
+                        [None if r is None or r < 0 else int(r) for r in rank[part].tolist()],
+                    ),
+                )
             connection.execute(
                 insert(Snapshot).values(
                     fit_id=fit_id,

@@ -106,9 +106,6 @@ def test_check_finds_a_score_row_of_an_older_fit_and_rebuild_repairs_it(history_
                                                                abs=1e-9)
 
 
-@pytest.mark.xfail(strict=True, reason="labelq/store/check.py _score_problems only counts scores of"
-                   " other fits; a candidate missing its score row under the last fit goes"
-                   " unnoticed")
 def test_check_finds_a_missing_score_row(history_store, sql):
     """A candidate's score row deleted (sqlite3): the last fit no longer scores the whole pool,
     which check must report with exit 1; common practice."""
@@ -197,8 +194,6 @@ def test_odd_names_in_json_and_export(odd_store):
     assert {r["key"] for r in as_json} == set(got)
 
 
-@pytest.mark.xfail(strict=True, reason="labelq/cli/render.py passes keys, classes and metadata to"
-                   " Rich as markup (queue_table add_row), so '[red]x[/red]' prints as 'x'")
 def test_odd_names_in_the_next_table(odd_store):
     """The `next` table prints keys, predicted classes and metadata as given; common practice."""
     out = odd_store("next", "-n", "150").stdout
@@ -207,9 +202,6 @@ def test_odd_names_in_the_next_table(odd_store):
     assert any(c in out for c in ODD_CLASSES[1:])  # at least one bracketed prediction shown
 
 
-@pytest.mark.xfail(strict=True, reason="labelq/cli/app.py show prints f'[bold]{key}[/bold]' and"
-                   " render tables pass keys/classes/metadata to Rich as markup, so"
-                   " '[red]x[/red]' prints as 'x'")
 def test_odd_names_in_the_show_table(odd_store):
     """`show KEY` prints the key, its label, class names and metadata as given; common practice."""
     out = odd_store("show", ODD_KEYS[100]).stdout

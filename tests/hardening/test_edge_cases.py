@@ -149,9 +149,6 @@ def test_workflow_edge_cases_in_a_store(tmp_path, cancer):
         assert store.check() == []
 
 
-@pytest.mark.xfail(strict=True, reason="labelq/gp/predictive.py _logistic_average: the trapezoid"
-                   " weights _TRAP_W sum to 1 + 3.9e-10, so for var > 1 and a large mean the"
-                   " averaged probability exceeds 1 (and 1 - p is negative)")
 def test_logistic_average_of_a_confident_latent_is_at_most_one():
     """E[sigma(f)] for f ~ N(m, s^2) lies in [0, 1] for every m and s (an average of values in
     [0, 1]; GPML eq. 3.25). Latent means of 30-200 with variance 4 occur for far-out breast-cancer
@@ -162,9 +159,6 @@ def test_logistic_average_of_a_confident_latent_is_at_most_one():
     assert (p >= 0.0).all() and (p <= 1.0).all(), p - 1.0
 
 
-@pytest.mark.xfail(strict=True, reason="labelq/acquire/batch.py _class_proba builds [1 - p, p] from"
-                   " predictive_probability, which exceeds 1 for confident wide latents; its"
-                   " check_proba then raises ValueError, so actions.label fails in _spread_head")
 def test_batch_selection_with_a_confident_wide_latent():
     """select_batch on three candidates whose latents are N(40, 4), N(0, 4), N(-40, 4) (the shape
     of a well-separated pool; values common practice): must return a batch, not raise."""

@@ -152,10 +152,6 @@ def test_next_queue_in_process_claims_for_each_holder(cancer_store):
         assert head_a != head_b
 
 
-@pytest.mark.xfail(strict=True, reason="next_queue reads the queue and then claims its head in a"
-                   " separate transaction and ignores claim()'s result, so two people asking at"
-                   " the same moment can both be handed the same head (labelq/loop/actions.py"
-                   " next_queue)")
 def test_next_queue_asked_at_the_same_moment_hands_out_different_heads(cancer_store):
     """Interleaving of two terminals asking `next` at the same moment: B's whole next_queue runs
     between A's queue read and A's claim (both through the public API, two Store objects, as two
