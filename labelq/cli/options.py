@@ -19,7 +19,7 @@ ByOption = Annotated[Optional[str], typer.Option(
     "--by", help="Who is labelling (default: $LABELQ_BY, else your login name).",
     show_default=False)]
 StrategyOption = Annotated[Optional[str], typer.Option(
-    "--strategy", "-s", help="entropy, margin, bald or random (default: the store's last, else entropy).",
+    "--strategy", "-s", help="entropy, margin, bald or random (default: the store's last, else margin).",
     show_default=False)]
 
 EXIT_USER_ERROR = 2

@@ -16,8 +16,10 @@ CAUTION = ("Probabilities are the model's estimates from the labels given so far
            "before relying on them for decisions that affect health or food safety, and follow "
            "local rules and licensed practice.")
 
-SCORE_NAMES = {"entropy": "entropy (bits)", "margin": "margin (sd)", "bald": "BALD (bits)",
+SCORE_NAMES = {"entropy": "entropy (bits)", "margin": "margin (p1-p2)", "bald": "BALD (bits)",
                "random": "random draw", "cold-start": "spread pick"}
+BINARY_MARGIN = "margin (sd)"
+"""Binary margin is |mean| / sqrt(1 + var) of the latent: in units of predictive spread."""
 
 
 def console() -> Console:
@@ -91,7 +93,9 @@ def queue_table(queue, classes, meta_columns) -> Table:
     table.add_column("key", overflow="fold")
     table.add_column("predicted")
     table.add_column("p", justify="right")
-    table.add_column(SCORE_NAMES.get(queue.strategy, "score"), justify="right")
+    score_name = (BINARY_MARGIN if queue.strategy == "margin" and len(classes) == 2
+                  else SCORE_NAMES.get(queue.strategy, "score"))
+    table.add_column(score_name, justify="right")
     for name in meta_columns:
         table.add_column(escape(name), overflow="fold")
     for row in queue.rows:

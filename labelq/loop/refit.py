@@ -23,6 +23,7 @@ import numpy as np
 from labelq.acquire import (bald_bits, cold_start, entropy_bits, margin, priority, rank_order,
                             select_batch)
 from labelq.gp import GPClassifier
+from labelq.gp.hyperparameters import median_distance
 from labelq.gp.intervals import probability_interval
 from labelq.gp.schedule import LEARN_FROM, learning_due
 from labelq.loop import settings
@@ -166,10 +167,11 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     )
 
 
-def new_classifier() -> GPClassifier:
+def new_classifier(lengthscale=None) -> GPClassifier:
     """The classifier every fit uses (features arrive standardised with the pool's scaling)."""
     return GPClassifier(kernel=settings.KERNEL, link=settings.LINK, inference=settings.INFERENCE,
-                        ard=settings.ARD, optimize=True, standardize=False, random_state=0)
+                        ard=settings.ARD, optimize=True, standardize=False, random_state=0,
+                        lengthscale=lengthscale)
 
 
 def _fit_model(store, state, classes, previous, fingerprint, progress):
@@ -181,26 +183,28 @@ def _fit_model(store, state, classes, previous, fingerprint, progress):
     pos = state.positions(state.label_ids)
     X, y = state.X[pos], np.asarray(state.label_classes, dtype=object)
     n = len(y)
-    if previous is not None and previous.model is not None:
-        clf = GPClassifier.from_dict(previous.model)
-        full_at = (previous.info or {}).get("full_at", 0)
-    else:
-        clf, full_at = new_classifier(), 0
-    warm = previous is not None and previous.model is not None
+    full_at = (previous.info or {}).get("full_at", 0) if previous is not None else 0
     full = learning_due(n, full_at)
+    warm = previous is not None and previous.model is not None and bool(full_at) and not full
+    if warm:
+        clf = GPClassifier.from_dict(previous.model)
+    else:
+        # Not learnt yet, or learning afresh: the data-driven start of the whole pool (median
+        # distance between candidates, unit signal variance), not of the few labelled rows.
+        clf = new_classifier(lengthscale=median_distance(state.X))
     if progress:
         progress("fitting", 0, n)
     with small_fit_threads(n):
         # Learning starts afresh from the data-driven start (see labelq.gp.schedule); other fits
         # keep the hyperparameters and warm-start the Newton iteration from the previous mode.
         clf.optimize = full
-        clf.fit(X, y, warm_start=warm and not full, classes=classes)
+        clf.fit(X, y, warm_start=warm, classes=classes)
         if (not full and n >= LEARN_FROM and previous is not None
                 and previous.log_marginal_likelihood is not None):
             before = previous.log_marginal_likelihood / max(previous.n_labels, 1)
             if clf.log_marginal_likelihood_ / n < before - settings.LML_DROP_PER_LABEL:
-                clf.optimize = True
-                clf.fit(X, y, warm_start=False, classes=classes)
+                clf = new_classifier(lengthscale=median_distance(state.X))
+                clf.fit(X, y, classes=classes)
                 full = True
     return clf, full, False, (n if full else full_at)
 

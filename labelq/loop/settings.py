@@ -9,8 +9,13 @@ LINK = "logistic"
 INFERENCE = "laplace"
 ARD = True
 
-DEFAULT_STRATEGY = "entropy"
-"""Strategy used when the user names none."""
+DEFAULT_STRATEGY = "margin"
+"""Strategy used when the user names none. Margin rather than entropy: replayed on the orchard
+demo pool (3 classes, `labelq simulate`, 64 labels, 2 seeds) entropy and BALD kept choosing
+outlying apples far from every label and ended at pool accuracy 0.33 and 0.49, margin at 0.74
+(random 0.74); on scikit-learn's breast-cancer data margin and entropy tie and beat random.
+Uncertainty sampling's pull towards outliers is a known failure mode (Settles 2009, "Active
+Learning Literature Survey", sec. on density-weighted methods)."""
 
 HEAD_SIZE = 20
 """The first HEAD_SIZE ranks of a fit are a spread-out batch (acquire.select_batch)."""
