@@ -143,8 +143,8 @@ def show(
               "skipped" if view["skipped"] else f"queue rank {view['rank']}" if view["rank"] else
               "unranked")
     con.print(f"[bold]{escape(view['key'])}[/bold] ({escape(status)})")
-    con.print(render.key_value_table(list(view["meta"].items())
-                                     + [(k, render.fmt_num(v, 4)) for k, v in view["features"].items()]))
+    features = [(k, render.fmt_value(v)) for k, v in view["features"].items()]
+    con.print(render.key_value_table(list(view["meta"].items()) + features))
     if view["p"]:
         con.print(render.probability_table(view))
     if view["nearest"]:

@@ -55,6 +55,11 @@ def fmt_num(x, digits=3) -> str:
     return f"{x:.{digits}f}"
 
 
+def fmt_value(x) -> str:
+    """A feature value as read: up to six significant digits."""
+    return f"{x:.6g}"
+
+
 def round_p(p) -> float:
     """A probability for JSON: four decimals."""
     return round(float(p), 4)

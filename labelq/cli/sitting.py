@@ -13,7 +13,8 @@ from labelq.loop import actions, reports
 
 WHY = {
     "entropy": "the model is least sure which class it belongs to (highest entropy)",
-    "margin": "it lies closest to a decision boundary, in units of the model's spread",
+    "margin": "its two likeliest classes are the closest to a tie (smallest p1 - p2)",
+    "margin-binary": "it lies closest to the decision boundary, in units of the model's spread",
     "bald": "its label would tell the model most about its latent function (BALD)",
     "random": "it was drawn at random (the baseline strategy)",
 }
@@ -33,7 +34,8 @@ def _card(con: Console, queue, classes) -> None:
     if queue.cold_start:
         con.print("why: cold start - a candidate far from those already seen, to cover the pool")
     else:
-        con.print(f"why: {WHY[queue.strategy]} (score {row.score:.3f})")
+        why = "margin-binary" if queue.strategy == "margin" and len(classes) == 2 else queue.strategy
+        con.print(f"why: {WHY[why]} (score {row.score:.3f})")
 
 
 def _answer(con: Console) -> str:
@@ -84,7 +86,7 @@ def run_session(store, by: str, strategy=None) -> dict:
                 elif answer == "?":
                     view = reports.candidate_view(store, row.key)
                     con.print(render.key_value_table(
-                        [(k, render.fmt_num(v, 4)) for k, v in view["features"].items()]))
+                        [(k, render.fmt_value(v)) for k, v in view["features"].items()]))
                     if view["nearest"]:
                         con.print(render.nearest_table(view["nearest"]))
                 elif (cls := _as_class(answer, classes)) is not None:
