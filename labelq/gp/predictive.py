@@ -41,9 +41,19 @@ def _check_pair(mean, var):
     return mean, var
 
 
-def _logistic_average(mean, var):
-    """E[sigma(f)], f ~ N(mean, var), shape (n,); see the module docstring for the rule."""
-    s = np.sqrt(var)
+def _logistic_average(mean, var, block=20_000):
+    """E[sigma(f)], f ~ N(mean, var), shape (n,); see the module docstring for the rule.
+
+    Rows go in blocks so the (rows, nodes) work arrays stay small on large pools.
+    """
+    out = np.empty_like(mean)
+    for start in range(0, mean.shape[0], block):
+        sl = slice(start, start + block)
+        out[sl] = _logistic_block(mean[sl], np.sqrt(var[sl]))
+    return np.clip(out, 0.0, 1.0, out=out)
+
+
+def _logistic_block(mean, s):
     out = np.empty_like(mean)
     narrow = s <= 1.0
     if np.any(narrow):
@@ -53,7 +63,7 @@ def _logistic_average(mean, var):
     if np.any(wide):
         m, sd = mean[wide], s[wide]
         out[wide] = ndtr((m[:, None] - _TRAP_G) / sd[:, None]) @ _TRAP_W
-    return np.clip(out, 0.0, 1.0, out=out)
+    return out
 
 
 def _sobol_normals(n_classes, n_points=_SOFTMAX_SAMPLES):
