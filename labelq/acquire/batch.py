@@ -146,7 +146,8 @@ the shortlist matters there, and 256 points keep the error to a few 1e-3 at an e
 
 def _class_proba(mean, var, link):
     """Class probabilities (m, n_classes) from the latent, via labelq.gp."""
-    p = predictive_probability(mean, var, link, n_points=RESCORE_POINTS if link == "softmax" else None)
+    points = RESCORE_POINTS if link == "softmax" else None
+    p = predictive_probability(mean, var, link, n_points=points)
     return p if link == "softmax" else np.stack([1.0 - p, p], axis=1)
 
 

@@ -43,7 +43,8 @@ def person(by: Optional[str]) -> str:
 @app.command()
 @user_errors
 def init(
-    classes: Annotated[str, typer.Option("--classes", help="Comma-separated class names, e.g. export,local,juice.")],
+    classes: Annotated[str, typer.Option(
+        "--classes", help="Comma-separated class names, e.g. export,local,juice.")],
     db: DbOption = None,
     json: JsonOption = False,
 ):
@@ -62,7 +63,8 @@ def init(
 @user_errors
 def import_(
     file: Annotated[Path, typer.Argument(help="CSV file with a header row.", show_default=False)],
-    id_column: Annotated[str, typer.Option("--id", help="Column holding each candidate's unique key.")],
+    id_column: Annotated[str, typer.Option(
+        "--id", help="Column holding each candidate's unique key.")],
     features: Annotated[Optional[str], typer.Option(
         "--features", help="Comma-separated feature columns (default: every numeric column).",
         show_default=False)] = None,
@@ -189,7 +191,7 @@ def skip(
     db: DbOption = None,
     json: JsonOption = False,
 ):
-    """Skip a candidate: it sinks to the bottom of the queue until labelled or the skip is undone."""
+    """Skip a candidate: it waits at the bottom of the queue until labelled or the skip is undone."""
     with open_store(db) as store, render.progress_bar("re-ranking") as update:
         actions.skip(store, key, person(by), progress=lambda stage, d, t: update(d, t, stage))
     if json:
@@ -258,7 +260,8 @@ def history(
 @user_errors
 def export(
     what: Annotated[str, typer.Argument(help="labels, predictions or model.", show_default=False)],
-    output: Annotated[Optional[Path], typer.Option("-o", "--output", help="Write to this file instead of stdout.", show_default=False)] = None,
+    output: Annotated[Optional[Path], typer.Option(
+        "-o", "--output", help="Write to this file instead of stdout.", show_default=False)] = None,
     db: DbOption = None,
     json: JsonOption = False,
 ):
@@ -294,12 +297,19 @@ def simulate(
     file: Annotated[Path, typer.Argument(help="A fully labelled CSV.", show_default=False)],
     id_column: Annotated[str, typer.Option("--id", help="Column holding each row's key.")],
     truth: Annotated[str, typer.Option("--truth", help="Column holding the true class.")],
-    strategies: Annotated[str, typer.Option("--strategies", help="Comma-separated strategies to compare.")] = ",".join(STRATEGIES),
-    budget: Annotated[int, typer.Option("--budget", help="Labels to query after the initial ones.", min=1)] = 60,
-    seeds: Annotated[int, typer.Option("--seeds", help="Replays per strategy (seeds 0..K-1).", min=1)] = 5,
-    initial: Annotated[int, typer.Option("--initial", help="Labels drawn at random before querying.", min=1)] = 4,
-    features: Annotated[Optional[str], typer.Option("--features", help="Comma-separated feature columns (default: every numeric column).", show_default=False)] = None,
-    plot: Annotated[Optional[Path], typer.Option("--plot", help="Also write the learning curves as a PNG.", show_default=False)] = None,
+    strategies: Annotated[str, typer.Option(
+        "--strategies", help="Comma-separated strategies to compare.")] = ",".join(STRATEGIES),
+    budget: Annotated[int, typer.Option(
+        "--budget", help="Labels to query after the initial ones.", min=1)] = 60,
+    seeds: Annotated[int, typer.Option(
+        "--seeds", help="Replays per strategy (seeds 0..K-1).", min=1)] = 5,
+    initial: Annotated[int, typer.Option(
+        "--initial", help="Labels drawn at random before querying.", min=1)] = 4,
+    features: Annotated[Optional[str], typer.Option(
+        "--features", help="Comma-separated feature columns (default: every numeric column).",
+        show_default=False)] = None,
+    plot: Annotated[Optional[Path], typer.Option(
+        "--plot", help="Also write the learning curves as a PNG.", show_default=False)] = None,
     json: JsonOption = False,
 ):
     """Replay strategies on a fully labelled CSV and compare their learning curves."""
@@ -356,7 +366,8 @@ def rebuild(
 @app.command()
 @user_errors
 def demo(
-    dir: Annotated[Path, typer.Option("--dir", help="Folder for the demo files and store.")] = Path("."),
+    dir: Annotated[Path, typer.Option(
+        "--dir", help="Folder for the demo files and store.")] = Path("."),
 ):
     """Build the orchard demo store, label a few apples and show the queue."""
     from labelq.cli.walkthrough import run_demo

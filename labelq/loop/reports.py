@@ -119,16 +119,18 @@ def history_series(rows) -> dict:
             "expected accuracy": (xs, [r["expected_accuracy"] for r in rows])}
 
 
+HISTORY_TITLE = "Pool uncertainty by labels given"
+REPLAY_TITLE = "Accuracy over the pool by labels given"
+
+
 def history_chart(rows) -> str:
     """The history as a plain-text chart (at most 80 columns)."""
-    return render_chart(history_series(rows), title="Pool uncertainty by labels given",
-                        x_label="labels", y_label="value")
+    return render_chart(history_series(rows), HISTORY_TITLE, "labels", "value")
 
 
 def history_png(rows, path: Path) -> None:
     """The history chart as a PNG (needs the [plot] extra)."""
-    write_png(path, history_series(rows), title="Pool uncertainty by labels given",
-              x_label="labels", y_label="value")
+    write_png(path, history_series(rows), HISTORY_TITLE, "labels", "value")
 
 
 def _model(fit) -> Optional[GPClassifier]:
@@ -272,14 +274,12 @@ def simulation_series(result) -> dict:
 
 def simulation_chart(result) -> str:
     """Learning curves as a plain-text chart."""
-    return render_chart(simulation_series(result), title="Accuracy over the pool by labels given",
-                        x_label="labels", y_label="accuracy")
+    return render_chart(simulation_series(result), REPLAY_TITLE, "labels", "accuracy")
 
 
 def simulate_png(result, path: Path) -> None:
     """Learning curves as a PNG (needs the [plot] extra)."""
-    write_png(path, simulation_series(result), title="Accuracy over the pool by labels given",
-              x_label="labels", y_label="accuracy")
+    write_png(path, simulation_series(result), REPLAY_TITLE, "labels", "accuracy")
 
 
 def latest_mean_entropy(store) -> Optional[float]:

@@ -8,7 +8,6 @@ Data: scikit-learn's bundled breast-cancer and iris data sets (subsets named in 
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from labelq.acquire import select_batch
 from labelq.gp import GPClassifier, predictive_probability
