@@ -60,6 +60,11 @@ def fmt_value(x) -> str:
     return f"{x:.6g}"
 
 
+def short_time(at) -> str:
+    """'2026-12-01T22:59:14Z' -> '12-01 22:59' (UTC), for narrow tables."""
+    return "-" if not at else f"{at[5:10]} {at[11:16]}"
+
+
 def round_p(p) -> float:
     """A probability for JSON: four decimals."""
     return round(float(p), 4)
@@ -191,20 +196,25 @@ def print_status(con: Console, doc) -> None:
 
 
 def print_history(con: Console, rows, chart: str) -> None:
-    """The `history` screen: one row per fit, then the chart."""
+    """The `history` screen: one row per fit (entropy = mean over unlabelled candidates, bits;
+    uncertain = top probability below 0.8; exp. acc. = the model's own expected accuracy; kappa =
+    agreement with the previous fit), then the chart."""
     if not rows:
         con.print("No fits yet: label a few candidates first.")
         return
     table = Table(show_edge=False, pad_edge=False, header_style="bold")
-    for name, justify in [("fit", "right"), ("session", "right"), ("labels", "right"),
-                          ("mean entropy", "right"), ("uncertain", "right"),
-                          ("exp. accuracy", "right"), ("kappa", "right"), ("at", "left")]:
-        table.add_column(name, justify=justify)
+    for name, justify in [("fit", "right"), ("sess.", "right"), ("labels", "right"),
+                          ("entropy", "right"), ("uncertain", "right"), ("exp. acc.", "right"),
+                          ("kappa", "right"), ("at (UTC)", "left")]:
+        table.add_column(name, justify=justify, no_wrap=True)
     for r in rows:
         table.add_row(str(r["fit"]), "-" if r["session"] is None else str(r["session"]),
                       str(r["n_labels"]), fmt_num(r["mean_entropy"]), f"{r['n_uncertain']:,}",
-                      fmt_num(r["expected_accuracy"]), fmt_num(r["kappa"]), r["at"] or "-")
+                      fmt_num(r["expected_accuracy"]), fmt_num(r["kappa"]), short_time(r["at"]))
     con.print(table)
+    con.print("entropy: mean over unlabelled candidates, bits; uncertain: top p below 0.8;\n"
+              "exp. acc.: the model's own estimate; kappa: agreement with the previous fit",
+              style="dim")
     con.print(chart)
 
 
