@@ -22,6 +22,7 @@ import numpy as np
 
 from labelq.acquire import (bald_bits, cold_start, entropy_bits, margin, priority, rank_order,
                             select_batch)
+from labelq.errors import LabelqError
 from labelq.gp import GPClassifier
 from labelq.gp.hyperparameters import median_distance
 from labelq.gp.intervals import probability_interval
@@ -90,8 +91,14 @@ def is_stale(store) -> bool:
     return last is None or last.event_mark != store.event_mark()
 
 
+class EmptyPoolError(LabelqError):
+    """The store holds no candidates yet, so there is nothing to fit or rank."""
+
+
 def ensure_fit(store, strategy: Optional[str] = None, session_id=None, progress: Progress = None):
     """The last fit, refitting first when the store changed since it (or the strategy differs)."""
+    if store.counts()["candidates"] == 0:
+        raise EmptyPoolError(f"{store.path} holds no candidates yet: add some with `labelq import`")
     last = store.last_fit()
     wanted = strategy or (last.strategy if last and last.strategy != "cold-start" else None)
     wanted = wanted or settings.DEFAULT_STRATEGY
@@ -141,6 +148,8 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
             kappa = float(cohen_kappa(before[keep], now[keep]))
     unlabelled = np.ones(len(state.ids), dtype=bool)
     unlabelled[state.positions(state.label_ids)] = False
+    if not unlabelled.any():  # every candidate labelled: summarise the whole pool instead
+        unlabelled[:] = True
     snap = snapshot(scores["proba"][unlabelled], classes, uncertain_below=settings.UNCERTAIN_BELOW)
     snap["agreement_kappa"] = kappa
 

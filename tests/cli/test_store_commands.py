@@ -120,3 +120,22 @@ def test_import_with_known_labels(cli, tmp_path, csv_file):
     doc = cli.json("import", path, "--id", "key", "--labels", "truth")
     assert doc["labels"] == 2
     assert cli.json("status")["labelled"] == 2
+
+
+def test_next_on_an_empty_store(cli, user_error):
+    assert cli("init", "--classes", "malignant,benign").exit_code == 0
+    before = cli.counts()
+    user_error(cli("next"), "no candidates")
+    user_error(cli("export", "predictions"), "no candidates")
+    assert cli.counts() == before
+
+
+def test_every_candidate_labelled(cli, tmp_path, csv_file):
+    """A pool with nothing left to label: an empty queue, a snapshot over the whole pool."""
+    assert cli("init", "--classes", "malignant,benign").exit_code == 0
+    path = csv_file(tmp_path / "done.csv", ["key", "a", "b", "truth"],
+                    [["k1", "1", "2", "benign"], ["k2", "3", "1", "malignant"],
+                     ["k3", "0", "0", "benign"]])
+    assert cli("import", path, "--id", "key", "--labels", "truth").exit_code == 0
+    assert cli.json("next")["queue"] == []
+    assert cli.json("status")["snapshot"]["mean_entropy"] >= 0.0
