@@ -45,7 +45,8 @@ def fail(message: str) -> None:
 
 
 def user_errors(command):
-    """Turn named errors (LabelqError, and ValueError from argument checks) into one line, exit 2."""
+    """Turn named errors (LabelqError, ValueError from argument checks, OSError on a file the user
+    named) into one line on stderr and exit code 2."""
 
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
@@ -53,4 +54,6 @@ def user_errors(command):
             return command(*args, **kwargs)
         except (LabelqError, ValueError) as exc:
             fail(str(exc).splitlines()[0] if str(exc) else type(exc).__name__)
+        except OSError as exc:  # a file the user named cannot be read or written
+            fail(f"{exc.filename or ''}: {exc.strerror or exc}".lstrip(": "))
     return wrapper

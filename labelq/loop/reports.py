@@ -30,6 +30,21 @@ class NothingFittedError(LabelqError):
     """The store has no fitted model yet (no labels from two classes)."""
 
 
+class OutputPathError(LabelqError):
+    """An output file cannot be written where the user asked."""
+
+
+def check_output(path: Path) -> Path:
+    """``path`` if a file can be written there, else OutputPathError naming the problem."""
+    path = Path(path)
+    if path.is_dir():
+        raise OutputPathError(f"cannot write {path}: it is a folder")
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise OutputPathError(f"cannot write {path}: folder {parent} does not exist")
+    return path
+
+
 def label_counts(store) -> dict:
     """Labels per class, every class included."""
     counts = {c: 0 for c in store.classes}
@@ -130,7 +145,7 @@ def history_chart(rows) -> str:
 
 def history_png(rows, path: Path) -> None:
     """The history chart as a PNG (needs the [plot] extra)."""
-    write_png(path, history_series(rows), HISTORY_TITLE, "labels", "value")
+    write_png(check_output(path), history_series(rows), HISTORY_TITLE, "labels", "value")
 
 
 def _model(fit) -> Optional[GPClassifier]:
@@ -228,7 +243,7 @@ def _table_text(rows, columns, as_json) -> str:
 
 def write_text(path: Path, text: str) -> None:
     """Write ``text`` to ``path`` atomically (a temporary file renamed into place)."""
-    path = Path(path)
+    path = check_output(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent if str(path.parent) else ".", prefix=".labelq-")
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
@@ -279,7 +294,7 @@ def simulation_chart(result) -> str:
 
 def simulate_png(result, path: Path) -> None:
     """Learning curves as a PNG (needs the [plot] extra)."""
-    write_png(path, simulation_series(result), REPLAY_TITLE, "labels", "accuracy")
+    write_png(check_output(path), simulation_series(result), REPLAY_TITLE, "labels", "accuracy")
 
 
 def latest_mean_entropy(store) -> Optional[float]:

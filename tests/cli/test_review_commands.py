@@ -106,3 +106,10 @@ def test_simulate_bad_truth_column(cli, cancer_csv, user_error):
     result = cli.runner.invoke(app, ["simulate", str(cancer_csv), "--id", "key", "--truth",
                                      "nope"])
     user_error(result, "nope")
+
+
+def test_output_paths_that_cannot_be_written(cancer_store, cancer_csv, tmp_path, user_error):
+    label_head(cancer_store, cancer_store.truth(cancer_csv), 3)
+    user_error(cancer_store("export", "labels", "-o", tmp_path), "folder")
+    user_error(cancer_store("history", "--plot", tmp_path / "no" / "h.png"), "does not exist")
+    assert list(tmp_path.glob(".labelq-*")) == []
