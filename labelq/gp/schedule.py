@@ -17,6 +17,13 @@ from typing import Optional
 LEARN_FROM = 16
 """No hyperparameter learning below this many labels."""
 
+ARD_LABELS_PER_FEATURE = 10
+"""One lengthscale per feature (ARD) only from this many labels per feature: with fewer, the
+d + 1 hyperparameters overfit the labels. Measured on scikit-learn's breast-cancer replay (30
+features, 64 labels): ARD learnt from 16-64 labels lowered every strategy's area under the
+learning curve (entropy 0.950 -> 0.923, random 0.920 -> 0.899) and left BALD below random
+(rule of thumb of about ten observations per parameter; common practice, no published source)."""
+
 
 def learning_due(n_labels: int, learnt_at: Optional[int]) -> bool:
     """True when a fit on ``n_labels`` labels should learn the hyperparameters afresh.
@@ -24,3 +31,8 @@ def learning_due(n_labels: int, learnt_at: Optional[int]) -> bool:
     ``learnt_at`` is the label count at which they were last learnt (None: never).
     """
     return n_labels >= LEARN_FROM and (not learnt_at or n_labels >= 2 * learnt_at)
+
+
+def ard_due(n_labels: int, n_features: int) -> bool:
+    """True when a fit on ``n_labels`` labels should learn one lengthscale per feature."""
+    return n_labels >= ARD_LABELS_PER_FEATURE * n_features

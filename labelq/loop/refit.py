@@ -26,7 +26,7 @@ from labelq.errors import LabelqError
 from labelq.gp import GPClassifier
 from labelq.gp.hyperparameters import median_distance
 from labelq.gp.intervals import probability_interval
-from labelq.gp.schedule import LEARN_FROM, learning_due
+from labelq.gp.schedule import LEARN_FROM, ard_due, learning_due
 from labelq.loop import settings
 from labelq.review import cohen_kappa, snapshot, stop_set
 from labelq.review.blas_threads import single_blas_thread
@@ -176,10 +176,10 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     )
 
 
-def new_classifier(lengthscale=None) -> GPClassifier:
+def new_classifier(lengthscale=None, ard=False) -> GPClassifier:
     """The classifier every fit uses (features arrive standardised with the pool's scaling)."""
     return GPClassifier(kernel=settings.KERNEL, link=settings.LINK, inference=settings.INFERENCE,
-                        ard=settings.ARD, optimize=True, standardize=False, random_state=0,
+                        ard=ard, optimize=True, standardize=False, random_state=0,
                         lengthscale=lengthscale)
 
 
@@ -199,8 +199,9 @@ def _fit_model(store, state, classes, previous, fingerprint, progress):
         clf = GPClassifier.from_dict(previous.model)
     else:
         # Not learnt yet, or learning afresh: the data-driven start of the whole pool (median
-        # distance between candidates, unit signal variance), not of the few labelled rows.
-        clf = new_classifier(lengthscale=median_distance(state.X))
+        # distance between candidates, unit signal variance), not of the few labelled rows;
+        # one lengthscale per feature only once there are labels enough for them.
+        clf = new_classifier(median_distance(state.X), ard_due(n, state.X.shape[1]))
     if progress:
         progress("fitting", 0, n)
     with small_fit_threads(n):
@@ -212,7 +213,7 @@ def _fit_model(store, state, classes, previous, fingerprint, progress):
                 and previous.log_marginal_likelihood is not None):
             before = previous.log_marginal_likelihood / max(previous.n_labels, 1)
             if clf.log_marginal_likelihood_ / n < before - settings.LML_DROP_PER_LABEL:
-                clf = new_classifier(lengthscale=median_distance(state.X))
+                clf = new_classifier(median_distance(state.X), ard_due(n, state.X.shape[1]))
                 clf.fit(X, y, classes=classes)
                 full = True
     return clf, full, False, (n if full else full_at)

@@ -277,7 +277,8 @@ def simulate_csv(path: Path, id_column: str, truth: str, strategies, budget: int
     scale[~(scale > 0)] = 1.0
     X = (X - X.mean(axis=0)) / scale
     result = simulate(X, y, strategies=tuple(strategies), budget=budget,
-                      seeds=tuple(range(seeds)), n_initial=initial, progress=progress)
+                      seeds=tuple(range(seeds)), n_initial=initial, kernel=settings.KERNEL,
+                      link=settings.LINK, progress=progress)
     result["file"] = str(path)
     return result
 

@@ -7,7 +7,6 @@ made the same way: a fit is a deterministic function of the label events and the
 KERNEL = "se"
 LINK = "logistic"
 INFERENCE = "laplace"
-ARD = True
 
 DEFAULT_STRATEGY = "margin"
 """Strategy used when the user names none. Margin rather than entropy: replayed on the orchard

@@ -14,7 +14,7 @@ import numpy as np
 
 from labelq.acquire import STRATEGIES, entropy_bits, priority, rank_order
 from labelq.gp import GPClassifier
-from labelq.gp.schedule import learning_due
+from labelq.gp.schedule import ard_due, learning_due
 from labelq.review.blas_threads import single_blas_thread
 from labelq.review.learning_curve import curve_summary
 
@@ -50,15 +50,19 @@ class _Replay:
     classes: list
     kernel: str
     link: str
-    ard: bool
+    ard: Optional[bool]
     budget: int
     refit_every: int
     tick: Callable[[], None]
 
-    def model(self, seed: int, optimize: bool = False) -> GPClassifier:
+    def model(self, seed: int, optimize: bool = False, n_labels: int = 0) -> GPClassifier:
         # Features were standardised once by the replay, so the estimator need not redo it per fit.
-        return GPClassifier(kernel=self.kernel, link=self.link, ard=self.ard, optimize=optimize,
-                            standardize=False, random_state=seed)
+        return GPClassifier(kernel=self.kernel, link=self.link, ard=self.use_ard(n_labels),
+                            optimize=optimize, standardize=False, random_state=seed)
+
+    def use_ard(self, n_labels: int) -> bool:
+        """ARD as asked, or (ard=None) as the label loop does: labelq.gp.schedule.ard_due."""
+        return ard_due(n_labels, self.Xs.shape[1]) if self.ard is None else bool(self.ard)
 
     def accuracy(self, proba: np.ndarray, model: GPClassifier) -> float:
         """Fraction of the pool whose most probable class is the true one."""
@@ -87,6 +91,7 @@ def _replay_run(replay: _Replay, strategy: str, start: np.ndarray, seed: int):
         model.optimize = learning_due(n, learnt_at)
         if model.optimize:
             learnt_at = n
+            model.ard = replay.use_ard(n)
         idx = np.asarray(order)
         # Learning starts the optimiser afresh: started from the previous hyperparameters it can
         # stay in the flat region where a tiny signal variance calls every label noise.
@@ -119,7 +124,7 @@ def simulate(
     n_initial: int = 4,
     kernel: str = "se",
     link: str = "logistic",
-    ard: bool = False,
+    ard: Optional[bool] = None,
     refit_every: int = 1,
     progress: Optional[Callable[[int, int], None]] = None,
 ) -> dict:
@@ -143,7 +148,9 @@ def simulate(
     budget : labels added after the initial ones
     seeds : one run per seed and strategy
     n_initial : starting labels, at least 2
-    kernel, link, ard : passed to GPClassifier
+    kernel, link : passed to GPClassifier
+    ard : one lengthscale per feature; None (default) follows labelq.gp.schedule.ard_due,
+        as the label loop does
     refit_every : labels added between fits (1 = refit after every label)
     progress : optional callable(done_steps, total_steps), called after every fit
 
@@ -186,7 +193,7 @@ def simulate(
     replay = _Replay(_standardise(X), y, classes.tolist(), kernel, link, ard, budget,
                      refit_every, tick)
     with single_blas_thread():
-        full = replay.model(0, optimize=True)
+        full = replay.model(0, optimize=True, n_labels=len(y))
         full.fit(replay.Xs, y, classes=replay.classes)
         full_accuracy = replay.accuracy(full.predict_pool(replay.Xs).proba, full)
         tick()
