@@ -7,7 +7,7 @@ Targets y are coded -1 / +1.
 import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
 
-from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky
+from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky, scaled_inverse
 
 TOLERANCE = 1e-10
 MAX_ITER = 100
@@ -94,7 +94,7 @@ def lml_and_gradient(kernel, X, K, y, link, a0=None):
     """
     a, n_iter, warnings = find_mode(K, y, link, a0)
     d1, d3, sW, L, lml = _state(K, y, link, a)
-    R = sW[:, None] * cho_solve((L, True), np.diag(sW), check_finite=False)  # Alg. 5.1: R
+    R = scaled_inverse(L, sW)  # Alg. 5.1: R = W^1/2 B^-1 W^1/2
     C = solve_triangular(L, sW[:, None] * K, lower=True, check_finite=False)  # Alg. 5.1: C
     # Alg. 5.1 s2, implicit part: d log q / d f_i = -1/2 Sigma_ii dW_ii/df_i with W = -d2, hence
     # +1/2 Sigma_ii d3_i, Sigma = (K^-1 + W)^-1 (GPML eq. 5.23; sign from W = -grad grad log p)

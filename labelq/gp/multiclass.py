@@ -10,7 +10,7 @@ import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
 from scipy.special import logsumexp, softmax
 
-from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky
+from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky, scaled_inverse
 
 TOLERANCE = 1e-10
 MAX_ITER = 100
@@ -36,7 +36,7 @@ def _blocks(K, F):
         sD = np.sqrt(Pi[:, c])
         L, _ = robust_cholesky(b_matrix(K, sD))  # L := chol(I + D_c^1/2 K D_c^1/2)
         # E_c := D_c^1/2 L^T \ (L \ D_c^1/2)
-        E[c] = sD[:, None] * cho_solve((L, True), np.diag(sD), check_finite=False)
+        E[c] = scaled_inverse(L, sD)
         log_det += np.log(np.diag(L)).sum()  # z_c := sum log L_ii
     M, _ = robust_cholesky(E.sum(0))  # M := chol(sum_c E_c)
     log_det += np.log(np.diag(M)).sum()  # log|B| = sum_c z_c + sum_i log M_ii (log q line)
