@@ -112,16 +112,24 @@ def _strategy_of(fit) -> str:
     return (fit.info or {}).get("strategy", fit.strategy)
 
 
+LAST_FIT = object()
+"""Default for refit's ``previous``: the store's last fit."""
+
+
 def refit(store, state: PoolState, strategy: str, session_id=None, progress: Progress = None,
-          previous=None) -> int:
+          previous=LAST_FIT, reuse_after: int = 0, generation: Optional[int] = None) -> int:
     """Fit, score, rank and snapshot ``state``; record it all in one transaction; return the fit id.
 
     ``previous`` is the fit to warm-start from and to compare predictions with (default: the
-    store's last fit).
+    store's last fit; None for none). Models of earlier fits on the same labels are reused only
+    from fits with id above ``reuse_after``. ``generation`` numbers rebuilds (default: the
+    previous fit's).
     """
     t0 = time.perf_counter()
     classes = store.classes
-    previous = store.last_fit() if previous is None else previous
+    previous = store.last_fit() if previous is LAST_FIT else previous
+    if generation is None:
+        generation = (previous.info or {}).get("generation", 0) if previous is not None else 0
     fingerprint = label_fingerprint(state.label_ids, state.label_classes)
     n_labels = len(state.label_ids)
     observed = set(state.label_classes)
@@ -129,7 +137,7 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     clf, full, reused, full_at = None, False, False, 0
     if observed:
         clf, full, reused, full_at = _fit_model(store, state, classes, previous, fingerprint,
-                                                progress)
+                                                progress, reuse_after)
     if progress:
         progress("scoring", 0, len(state.ids))
     scores = _score(clf, state, classes, strategy)
@@ -153,7 +161,8 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     snap = snapshot(scores["proba"][unlabelled], classes, uncertain_below=settings.UNCERTAIN_BELOW)
     snap["agreement_kappa"] = kappa
 
-    info = {"strategy": strategy, "cold_start": cold, "reused": reused, "full_at": full_at}
+    info = {"strategy": strategy, "cold_start": cold, "reused": reused, "full_at": full_at,
+            "generation": generation}
     fit = {
         "session_id": session_id,
         "n_labels": n_labels,
@@ -183,9 +192,9 @@ def new_classifier(lengthscale=None, ard=False) -> GPClassifier:
                         lengthscale=lengthscale)
 
 
-def _fit_model(store, state, classes, previous, fingerprint, progress):
+def _fit_model(store, state, classes, previous, fingerprint, progress, reuse_after=0):
     """Return (classifier, re-learnt?, reused an earlier model?, labels at the last full fit)."""
-    earlier = store.fit_with_fingerprint(fingerprint)
+    earlier = store.fit_with_fingerprint(fingerprint, after_id=reuse_after)
     if earlier is not None and earlier.model is not None:
         return (GPClassifier.from_dict(earlier.model), False, True,
                 (earlier.info or {}).get("full_at", 0))

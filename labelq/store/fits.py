@@ -119,12 +119,13 @@ class FitsMixin(StoreCore):
             row = connection.execute(select(Fit.__table__).order_by(Fit.id.desc()).limit(1)).first()
         return None if row is None else _fit_record(row)
 
-    def fit_with_fingerprint(self, fingerprint: str) -> Optional[FitRecord]:
-        """The newest fit made on the label set ``fingerprint`` that still has its model, or None."""
+    def fit_with_fingerprint(self, fingerprint: str, after_id: int = 0) -> Optional[FitRecord]:
+        """The newest fit (with id above ``after_id``) made on the label set ``fingerprint`` that
+        still has its model, or None."""
         with self._read() as connection:
             row = connection.execute(
                 select(Fit.__table__)
-                .where(Fit.fingerprint == fingerprint, text("model IS NOT NULL"))
+                .where(Fit.fingerprint == fingerprint, Fit.id > after_id, text("model IS NOT NULL"))
                 .order_by(Fit.id.desc())
                 .limit(1)
             ).first()
@@ -248,6 +249,20 @@ class FitsMixin(StoreCore):
             dtype=np.int64,
             count=len(ids),
         )
+
+    def drop_fits(self, ids: Sequence[int]) -> None:
+        """Delete the fits ``ids`` with their snapshots (and scores) in one transaction."""
+        ids = [int(i) for i in ids]
+        if not ids:
+            return
+        with self._write() as connection:
+            for start in range(0, len(ids), 500):
+                chunk = ids[start : start + 500]
+                marks = ",".join("?" * len(chunk))
+                raw = driver(connection)
+                raw.execute(f"DELETE FROM snapshots WHERE fit_id IN ({marks})", chunk)
+                raw.execute(f"DELETE FROM scores WHERE fit_id IN ({marks})", chunk)
+                raw.execute(f"DELETE FROM fits WHERE id IN ({marks})", chunk)
 
     def clear_derived(self) -> None:
         """Delete every fit, score and snapshot in one transaction (labels are kept)."""

@@ -77,6 +77,38 @@ def test_rebuild_remakes_snapshots_equal_to_the_stored_ones(history_store):
     assert cli("check").exit_code == 0
 
 
+def test_an_interrupted_rebuild_loses_nothing(history_store):
+    """A rebuild stopped half way (here by an exception from its progress callback) leaves the
+    old fits in place; the next rebuild drops the partial ones and remakes the same snapshots.
+    Common practice (write the new, then drop the old), no published source."""
+    from labelq.loop.maintain import rebuild
+    from labelq.store import Store
+
+    cli = history_store
+    before = _history(cli)
+
+    class Stop(Exception):
+        pass
+
+    def stop_after_three(stage, done, total):
+        if done == 3:
+            raise Stop
+
+    with Store.open(cli.db) as store:
+        with pytest.raises(Stop):
+            rebuild(store, progress=stop_after_three)
+    assert cli.json("rebuild")["fits"] == len(before)
+    after = _history(cli)
+    assert len(after) == len(before)
+    for old, new in zip(before, after):
+        for field in SNAPSHOT_FIELDS:
+            if old[field] is None:
+                assert new[field] is None
+            else:
+                assert new[field] == pytest.approx(old[field], abs=1e-9), (field, old, new)
+    assert cli("check").exit_code == 0
+
+
 def _first_score_row(sql, db):
     query, _ = sql
     return query(db, "SELECT candidate_id FROM scores ORDER BY candidate_id LIMIT 1")[0][0]
