@@ -16,7 +16,6 @@
 import numpy as np
 from numpy.polynomial.hermite import hermgauss
 from scipy.special import expit, ndtr, ndtri
-from scipy.stats import qmc
 
 _GH_T, _GH_W = hermgauss(40)
 _GH_W = _GH_W / np.sqrt(np.pi)
@@ -69,6 +68,8 @@ def _logistic_block(mean, s):
 def _sobol_normals(n_classes, n_points=_SOFTMAX_SAMPLES):
     """Fixed (n_points, n_classes) standard normal quasi-random points (scrambled Sobol, seed 0)."""
     if (n_classes, n_points) not in _sobol_cache:
+        from scipy.stats import qmc  # imported here: scipy.stats adds half a second to start-up
+
         u = qmc.Sobol(d=n_classes, scramble=True, seed=_SOFTMAX_SEED).random(n_points)
         _sobol_cache[n_classes, n_points] = ndtri(u)
     return _sobol_cache[n_classes, n_points]
