@@ -8,12 +8,14 @@ from typing import Annotated, Optional
 import typer
 from rich.markup import escape
 
+from labelq import __version__
 from labelq.acquire import STRATEGIES
 from labelq.errors import LabelqError
 from labelq.cli import render
 from labelq.cli.options import (ByOption, DbOption, JsonOption, StrategyOption, db_path, open_store,
                                 user_errors)
 from labelq.loop import actions, maintain, reports
+from labelq.store.migrate import head_revision
 
 app = typer.Typer(
     name="labelq",
@@ -23,6 +25,21 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
     rich_markup_mode=None,
 )
+
+
+def show_version(value: bool) -> None:
+    if value:
+        typer.echo(f"labelq {__version__} (store schema {head_revision()})")
+        raise typer.Exit()
+
+
+@app.callback()
+def main_options(
+    version: Annotated[bool, typer.Option(
+        "--version", help="Print the version and the store schema revision, then exit.",
+        callback=show_version, is_eager=True)] = False,
+):
+    """Label the candidates that teach a Gaussian-process classifier the most."""
 
 
 class BadOption(LabelqError):

@@ -139,3 +139,9 @@ def test_every_candidate_labelled(cli, tmp_path, csv_file):
     assert cli("import", path, "--id", "key", "--labels", "truth").exit_code == 0
     assert cli.json("next")["queue"] == []
     assert cli.json("status")["snapshot"]["mean_entropy"] >= 0.0
+
+
+def test_version(cli):
+    result = cli.runner.invoke(app, ["--version"])
+    assert result.exit_code == 0
+    assert result.stdout.startswith("labelq 0.1.0 (store schema ")
