@@ -11,7 +11,7 @@ from typing import Optional
 
 from labelq.ingest import read_candidates
 from labelq.loop import settings
-from labelq.loop.refit import Progress, ensure_fit
+from labelq.loop.refit import Progress, asked_strategy, ensure_fit
 from labelq.store import Store
 
 
@@ -144,9 +144,8 @@ def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
     if n < 1:
         raise ValueError("n must be at least 1")
     fit = ensure_fit(store, strategy, session_id=session_id, progress=progress)
-    info = fit.info or {}
-    shown = info.get("strategy", fit.strategy)
-    cold = bool(info.get("cold_start"))
+    shown = asked_strategy(fit)
+    cold = bool((fit.info or {}).get("cold_start"))
     skipped = set(store.skipped_ids().tolist())
     for _ in range(CLAIM_ATTEMPTS):
         found = store.queue(n, holder=holder)

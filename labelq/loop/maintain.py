@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from labelq.loop.refit import Progress, load_state, refit
+from labelq.loop import settings
+from labelq.loop.refit import Progress, asked_strategy, load_state, refit
 
 
 def check(store) -> list[str]:
@@ -25,12 +26,10 @@ def rebuild_plan(store) -> tuple[list, list]:
     """
     fits = store.fits()
     if not fits:
-        from labelq.loop import settings
-
         return [(mark, settings.DEFAULT_STRATEGY, None) for mark in store.event_marks()], []
     oldest = min(_generation(f) for f in fits)
     keep = [f for f in fits if _generation(f) == oldest]
-    plan = [(f.event_mark, (f.info or {}).get("strategy", f.strategy), f.session_id) for f in keep]
+    plan = [(f.event_mark, asked_strategy(f), f.session_id) for f in keep]
     return plan, [f.id for f in fits]
 
 

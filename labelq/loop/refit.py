@@ -45,6 +45,12 @@ class PoolState:
     label_classes: list  # (n,) class names
     skipped: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
 
+    def unlabelled(self) -> np.ndarray:
+        """(N,) bool: True for candidates without a label."""
+        mask = np.ones(len(self.ids), dtype=bool)
+        mask[self.positions(self.label_ids)] = False
+        return mask
+
     def positions(self, cand_ids) -> np.ndarray:
         """Row positions in the pool of the given candidate ids."""
         return np.searchsorted(self.ids, np.asarray(cand_ids, dtype=np.int64))
@@ -85,10 +91,15 @@ def label_fingerprint(label_ids, label_classes) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
 
 
-def is_stale(store) -> bool:
-    """True when labels, skips or candidates changed since the last recorded fit."""
-    last = store.last_fit()
-    return last is None or last.event_mark != store.event_mark()
+def is_current(store, fit) -> bool:
+    """True when ``fit`` exists and no label, skip or import came after it."""
+    return fit is not None and fit.event_mark == store.event_mark()
+
+
+def asked_strategy(fit) -> str:
+    """The strategy a fit was asked to rank by (its `strategy` column says cold-start instead
+    when the queue was a farthest-point spread)."""
+    return (fit.info or {}).get("strategy", fit.strategy)
 
 
 class EmptyPoolError(LabelqError):
@@ -102,14 +113,11 @@ def ensure_fit(store, strategy: Optional[str] = None, session_id=None, progress:
     last = store.last_fit()
     wanted = strategy or (last.strategy if last and last.strategy != "cold-start" else None)
     wanted = wanted or settings.DEFAULT_STRATEGY
-    if last is not None and last.event_mark == store.event_mark() and _strategy_of(last) == wanted:
+    if is_current(store, last) and asked_strategy(last) == wanted:
         return last
     refit(store, load_state(store), wanted, session_id=session_id, progress=progress)
     return store.last_fit()
 
-
-def _strategy_of(fit) -> str:
-    return (fit.info or {}).get("strategy", fit.strategy)
 
 
 LAST_FIT = object()
@@ -154,8 +162,7 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
         keep = before >= 0
         if keep.any():
             kappa = float(cohen_kappa(before[keep], now[keep]))
-    unlabelled = np.ones(len(state.ids), dtype=bool)
-    unlabelled[state.positions(state.label_ids)] = False
+    unlabelled = state.unlabelled()
     if not unlabelled.any():  # every candidate labelled: summarise the whole pool instead
         unlabelled[:] = True
     snap = snapshot(scores["proba"][unlabelled], classes, uncertain_below=settings.UNCERTAIN_BELOW)
@@ -264,10 +271,8 @@ def _score(clf, state: PoolState, classes, strategy):
 
 def _rank(clf, state: PoolState, scores, strategy, cold) -> np.ndarray:
     """Rank 1..M for unlabelled candidates (head spread out, skipped last); -1 for labelled ones."""
-    n = len(state.ids)
-    rank = np.full(n, -1, dtype=np.int64)
-    unl = np.ones(n, dtype=bool)
-    unl[state.positions(state.label_ids)] = False
+    rank = np.full(len(state.ids), -1, dtype=np.int64)
+    unl = state.unlabelled()
     rows = np.flatnonzero(unl)
     if rows.size == 0:
         return rank

@@ -18,7 +18,7 @@ from labelq.gp import GPClassifier
 from labelq.gp.intervals import probability_interval
 from labelq.ingest import read_candidates
 from labelq.loop import settings
-from labelq.loop.refit import ensure_fit
+from labelq.loop.refit import ensure_fit, is_current
 from labelq.review import render_chart, simulate, stopping_advice, write_png
 
 
@@ -92,7 +92,7 @@ def status(store) -> dict:
         "classes": per_class,
         "features": store.feature_names,
         "last_fit": _fit_summary(last),
-        "stale": last is None or last.event_mark != store.event_mark(),
+        "stale": not is_current(store, last),
         "snapshot": _snapshot_doc(snap),
         "advice": {"stop": advice.stop, "message": advice.message, "figures": advice.figures,
                    "flagged_classes": advice.flagged_classes},
