@@ -266,11 +266,21 @@ class GPClassifier:
         """Maximise the engine's LML from theta0 within `box` (bounds around the data-driven
         start, so repeated warm starts cannot drift); Newton/EP restart from the last state."""
         self._last_state = start
+        best = {"value": -np.inf, "state": start}
+        binary_laplace = self.n_classes_ == 2 and self.inference == "laplace"
 
         def objective(theta):
             kern = make_kernel(self.kernel, *self._split(theta))
-            value, grad, post = self._engine(kern, Xs, T, self._last_state, True)
+            begin = self._last_state
+            if binary_laplace and begin and best["state"] is not begin:
+                # Newton starts from the better (at the new kernel) of the last evaluated mode
+                # and the best one so far: after a rejected line-search trial the last mode is
+                # often far from where the search goes next
+                begin = {"a": np.stack([begin["a"], best["state"]["a"]])}
+            value, grad, post = self._engine(kern, Xs, T, begin, True)
             self._last_state = post.state
+            if value > best["value"]:
+                best.update(value=value, state=post.state)
             return value, grad
 
         n_ls = len(theta0) - 1
@@ -293,11 +303,14 @@ class GPClassifier:
             "signal_variance": float(s2)}
 
     # ----------------------------------------------------------------------------- predict
-    def _latent_scaled(self, Xs):
+    def _latent_scaled(self, Xs, precision="double", buffers=None):
         kss = self.kernel_.diag(Xs)
         if self.posterior_ is None:
             return np.zeros(len(Xs)), kss
-        return latent_moments(self.posterior_, self.kernel_(Xs, self._Xs), kss)
+        if buffers is None:
+            return latent_moments(self.posterior_, self.kernel_(Xs, self._Xs), kss, precision)
+        Ks = self.kernel_(Xs, self._Xs, out=buffers[0][:len(Xs)])
+        return latent_moments(self.posterior_, Ks, kss, precision, buffers[1])
 
     def _proba_from_latent(self, mean, var):
         if self.n_classes_ == 1:
@@ -320,14 +333,28 @@ class GPClassifier:
         """Most probable class label for each row (n,)."""
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
 
-    def predict_pool(self, X, chunk_size=20000):
+    def predict_pool(self, X, chunk_size=20000, precision="mixed"):
         """`Prediction(proba, mean, var)` for a large pool, computed chunk by chunk in one pass
-        (memory bounded by chunk_size times the training size)."""
+        (memory bounded by chunk_size times the training size).
+
+        precision : "mixed" (default) forms the binary latent variance in single precision with
+        double-precision refinement of low-variance rows (absolute error a few 1e-6 of the prior
+        variance, see `labelq.gp.posterior.latent_moments`); "double" matches `latent` exactly.
+        """
         Xs = self._transform(X)
         if int(chunk_size) < 1:
             raise ValueError(f"chunk_size must be >= 1, got {chunk_size!r}")
-        parts = [self._latent_scaled(Xs[i:i + int(chunk_size)])
-                 for i in range(0, len(Xs), int(chunk_size))]
+        chunk = min(int(chunk_size), len(Xs))
+        # one kernel buffer and one single-precision buffer serve every chunk: fresh large
+        # allocations cost page faults on each chunk
+        buffers = None
+        if chunk and self.posterior_ is not None:
+            n_train = self._Xs.shape[0]
+            buffers = (np.empty((chunk, n_train)),
+                       np.empty((chunk, n_train), dtype=np.float32)
+                       if precision == "mixed" else None)
+        parts = [self._latent_scaled(Xs[i:i + chunk], precision, buffers)
+                 for i in range(0, len(Xs), max(chunk, 1))]
         if parts:
             mean = np.concatenate([p[0] for p in parts])
             var = np.concatenate([p[1] for p in parts])

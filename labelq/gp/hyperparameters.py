@@ -14,7 +14,7 @@ MEDIAN_SUBSAMPLE = 1000
 # L-BFGS-B stops when the LML changes by less than 1e-6 relative per iteration or the projected
 # gradient is below 1e-3: hyperparameter differences below that are statistically irrelevant
 # (common practice, no published source) and it halves the evaluations of scipy's defaults.
-LBFGS_OPTIONS = {"ftol": 1e-6, "gtol": 1e-3}
+LBFGS_OPTIONS = {"ftol": 4e-6, "gtol": 1e-3}
 
 
 def median_distance(X, seed=0):

@@ -14,12 +14,12 @@ import numpy as np
 _SQRT5 = np.sqrt(5.0)
 
 
-def _scaled_sqdist(U, V):
+def _scaled_sqdist(U, V, out=None):
     """Squared Euclidean distances between rows of U (n, p) and V (m, p), clipped at 0.
 
-    Built in place in one (n, m) buffer: the pool hot path is memory bound.
+    Built in place in one (n, m) buffer (`out` if given): the pool hot path is memory bound.
     """
-    d2 = U @ V.T
+    d2 = np.matmul(U, V.T, out=out)
     d2 *= -2.0
     d2 += (U * U).sum(1)[:, None]
     d2 += (V * V).sum(1)[None, :]
@@ -56,11 +56,12 @@ class StationaryKernel:
     def _scale(self, X):
         return np.asarray(X, dtype=float) / self.lengthscale
 
-    def __call__(self, X, Z=None):
-        """Covariance matrix K(X, Z), shape (n, m); K(X, X) when Z is None."""
+    def __call__(self, X, Z=None, out=None):
+        """Covariance matrix K(X, Z), shape (n, m); K(X, X) when Z is None. `out`: an optional
+        C-contiguous float64 (n, m) buffer to fill (pools reuse one buffer chunk after chunk)."""
         U = self._scale(X)
         V = U if Z is None else self._scale(Z)
-        K = self._profile(_scaled_sqdist(U, V))
+        K = self._profile(_scaled_sqdist(U, V, out))
         K *= self.signal_variance
         if Z is None:
             np.fill_diagonal(K, self.signal_variance)
@@ -83,6 +84,40 @@ class StationaryKernel:
         grad_ls = per_dim if self.lengthscale.size == U.shape[1] else np.array([per_dim.sum()])
         return np.append(grad_ls, (G * K).sum())  # dK / d log s2 = K
 
+    def structured_gradient_contractions(self, X, K, outer_terms, s, M_lower, m_coef):
+        """`gradient_contractions` for G = sum_r c_r v_r v_r^T + m_coef diag(s) M diag(s) given in
+        parts, never forming G: `outer_terms` is a list of (c_r, v_r (n,)); M is symmetric and
+        given by its lower triangle `M_lower` (n, n) with zeros above the diagonal.
+
+        The contraction needs only H 1 and H U for H = G * Q, and (v v^T * Q) Y = v (Q (v Y)),
+        (S M S * Q) Y = s ((M * Q) (s Y)) with (M * Q) Z = P Z + P^T Z - diag(P) Z for
+        P = tril(M) * Q. That is one elementwise pass over (n, n) and a few (n, n) x (n, p + 1)
+        products instead of building, symmetrising and scaling (n, n) matrices.
+        """
+        U = self._scale(X)
+        U = U - U.mean(0)
+        n = U.shape[0]
+        Q = self._lengthscale_weight(U, K)
+
+        def apply(Qm, Y):
+            out = np.zeros_like(Y)
+            for c, v in outer_terms:
+                out += c * v[:, None] * (Qm @ (v[:, None] * Y))
+            P = M_lower * Qm
+            Z = s[:, None] * Y
+            PZ = P @ Z
+            PZ += P.T @ Z
+            PZ -= np.diag(P)[:, None] * Z
+            out += m_coef * s[:, None] * PZ
+            return out
+
+        HY = apply(Q, np.column_stack([np.ones(n), U]))
+        H1, HU = HY[:, 0], HY[:, 1:]
+        per_dim = 2.0 * ((U * U) * H1[:, None]).sum(0) - 2.0 * (U * HU).sum(0)
+        grad_ls = per_dim if self.lengthscale.size == U.shape[1] else np.array([per_dim.sum()])
+        signal = H1.sum() if Q is K else apply(K, np.ones((n, 1))).sum()  # dK / d log s2 = K
+        return np.append(grad_ls, signal)
+
     def _lengthscale_weight(self, U, K):
         """Q with dK / d log l_k = Q * D_k, from the scaled inputs U (n, p) or from K."""
         return self.signal_variance * self._lengthscale_factor(_scaled_sqdist(U, U))
@@ -93,12 +128,23 @@ class SquaredExponential(StationaryKernel):
 
     name = "se"
 
-    def __call__(self, X, Z=None):
+    def __call__(self, X, Z=None, out=None):
         """Covariance matrix K(X, Z), shape (n, m): s2 exp(u.v - |u|^2/2 - |v|^2/2) built in one
-        buffer (the pool hot path is memory bound)."""
+        buffer, `out` if given (the pool hot path is memory bound)."""
         U = self._scale(X)
         V = U if Z is None else self._scale(Z)
-        K = U @ V.T
+        if Z is not None and (out is not None or U.shape[0] > 4 * V.shape[0]):
+            # a pool against the training set: the exponent u.v - |u|^2/2 - |v|^2/2 + log s2
+            # comes out of one GEMM with two extra columns, then exp in place (two passes over
+            # the (n, m) buffer instead of five); exp(-x) for x >= -1e-13 can exceed s2 only by
+            # rounding, which we clip
+            log_s2 = np.log(self.signal_variance)
+            left = np.column_stack([U, 0.5 * (U * U).sum(1) - log_s2, np.ones(len(U))])
+            right = np.column_stack([V, -np.ones(len(V)), -0.5 * (V * V).sum(1)])
+            K = np.matmul(left, right.T, out=out)
+            np.exp(K, out=K)
+            return np.minimum(K, self.signal_variance, out=K)
+        K = np.matmul(U, V.T, out=out)
         K -= (0.5 * (U * U).sum(1) - np.log(self.signal_variance))[:, None]
         K -= 0.5 * (V * V).sum(1)[None, :]
         np.minimum(K, np.log(self.signal_variance), out=K)

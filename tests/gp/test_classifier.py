@@ -163,11 +163,12 @@ def test_predict_errors():
 
 @pytest.mark.parametrize("data", [_binary, _three])
 def test_predict_pool_equals_latent_and_proba(data):
-    # Source: labelq contract (predict_pool = latent + predict_proba, chunked).
+    # Source: labelq contract (predict_pool in double precision = latent + predict_proba,
+    # chunked; the mixed-precision default is bounded in test_mixed_precision.py).
     X, y = data()
     clf = GPClassifier(**FAST).fit(X, y)
     Xt = np.random.default_rng(4).normal(size=(23, 2)) * X.std(0) + X.mean(0)
-    pred = clf.predict_pool(Xt, chunk_size=5)
+    pred = clf.predict_pool(Xt, chunk_size=5, precision="double")
     assert isinstance(pred, Prediction)
     mean, var = clf.latent(Xt)
     np.testing.assert_allclose(pred.mean, mean, rtol=1e-12, atol=1e-12)
