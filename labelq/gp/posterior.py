@@ -68,9 +68,13 @@ def _trmm_variance(factor, Ks, kss, single, scratch=None):
             scratch = np.empty(Ks.shape, dtype=np.float32)
         K32 = scratch.reshape(-1)[:Ks.size].reshape(Ks.shape)
         np.copyto(K32, Ks, casting="same_kind")
-        k_norm = np.sqrt(np.einsum("ij,ij->i", K32, K32, dtype=np.float64))
+        k_norm = np.sqrt(np.einsum("ij,ij->i", K32, K32))  # only for the error estimate
         V = blas.strmm(1.0, factor, K32.T, lower=1, overwrite_b=1)  # in place: K32.T is F-order
-        v2 = np.einsum("ij,ij->j", V, V, dtype=np.float64)
+        # |v|^2 by squaring in place and numpy's pairwise summation along the contiguous axis:
+        # its single-precision rounding, about u log2(n) |v|^2, stays below the product's own
+        Vt = V.T  # (m, n), C-contiguous
+        np.square(Vt, out=Vt)
+        v2 = Vt.sum(axis=1).astype(np.float64)
         return kss - v2[:m], _SINGLE_ROUNDOFF * np.sqrt(v2[:m]) * k_norm
     V = blas.dtrmm(1.0, factor, np.asfortranarray(Ks.T), lower=1, overwrite_b=1)
     return kss - np.einsum("ij,ij->j", V, V)
