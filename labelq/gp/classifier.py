@@ -4,7 +4,9 @@ A small estimator in front of the engines: binary Laplace (`laplace.py`, GPML Al
 binary EP with the probit link (`ep.py`, Alg. 3.5/3.6/5.2) and multi-class softmax Laplace
 (`multiclass.py`, Alg. 3.3/3.4), with hyperparameters learnt by `hyperparameters.maximise`.
 """
+import threading
 from collections import namedtuple
+from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
@@ -333,46 +335,66 @@ class GPClassifier:
         """Most probable class label for each row (n,)."""
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
 
-    def predict_pool(self, X, chunk_size=20000, precision="mixed"):
+    def predict_pool(self, X, chunk_size=20000, precision="mixed", n_jobs=1):
         """`Prediction(proba, mean, var)` for a large pool, computed chunk by chunk in one pass
-        (memory bounded by chunk_size times the training size).
+        (memory bounded by chunk_size times the training size, per worker).
 
         precision : "mixed" (default) forms the binary latent variance in single precision with
-        double-precision refinement of low-variance rows (absolute error a few 1e-6 of the prior
-        variance, see `labelq.gp.posterior.latent_moments`); "double" matches `latent` exactly.
+            double-precision refinement of rows at risk (see
+            `labelq.gp.posterior.latent_moments`); "double" matches `latent` exactly.
+        n_jobs : chunks scored at once in threads (NumPy and BLAS release the GIL). Give BLAS
+            one thread per worker (e.g. threadpoolctl) when n_jobs > 1; the rows come out the
+            same either way, since each chunk is computed on its own.
         """
         Xs = self._transform(X)
         if int(chunk_size) < 1:
             raise ValueError(f"chunk_size must be >= 1, got {chunk_size!r}")
-        chunk = min(int(chunk_size), len(Xs))
-        # one kernel buffer and one single-precision buffer serve every chunk: fresh large
-        # allocations cost page faults on each chunk
-        buffers = None
-        if chunk and self.posterior_ is not None:
-            n_train = self._Xs.shape[0]
-            buffers = (np.empty((chunk, n_train)),
-                       np.empty((chunk, n_train), dtype=np.float32)
-                       if precision == "mixed" else None)
-        parts = [self._latent_scaled(Xs[i:i + chunk], precision, buffers)
-                 for i in range(0, len(Xs), max(chunk, 1))]
-        if parts:
-            mean = np.concatenate([p[0] for p in parts])
-            var = np.concatenate([p[1] for p in parts])
-        else:
+        if int(n_jobs) < 1:
+            raise ValueError(f"n_jobs must be >= 1, got {n_jobs!r}")
+        if len(Xs) == 0:
             shape = (0,) if self.n_classes_ <= 2 else (0, self.n_classes_)
-            mean, var = np.zeros(shape), np.zeros(shape)
-        return Prediction(self._proba_from_latent(mean, var), mean, var)
+            empty = np.zeros(shape)
+            return Prediction(self._proba_from_latent(empty, empty), empty, empty.copy())
+        chunk = min(int(chunk_size), len(Xs))
+        starts = range(0, len(Xs), chunk)
+        local = threading.local()
+
+        def work(start):
+            # one kernel buffer and one single-precision buffer per worker serve all its chunks:
+            # fresh large allocations cost page faults on every chunk
+            if not hasattr(local, "buffers"):
+                local.buffers = self._pool_buffers(chunk, precision)
+            mean, var = self._latent_scaled(Xs[start:start + chunk], precision, local.buffers)
+            return self._proba_from_latent(mean, var), mean, var
+
+        if int(n_jobs) > 1 and len(starts) > 1:
+            with ThreadPoolExecutor(min(int(n_jobs), len(starts))) as pool:
+                parts = list(pool.map(work, starts))
+        else:
+            parts = [work(start) for start in starts]
+        proba, mean, var = (np.concatenate([part[i] for part in parts]) for i in range(3))
+        return Prediction(proba, mean, var)
+
+    def _pool_buffers(self, chunk, precision):
+        if self.posterior_ is None:
+            return None
+        n_train = self._Xs.shape[0]
+        single = np.empty((chunk, n_train), dtype=np.float32) if precision == "mixed" else None
+        return np.empty((chunk, n_train)), single
 
     def latent_cross_cov(self, X, Z):
         """Posterior latent covariance between rows of X and of Z: (n, m) binary, (n, m, C)
         multi-class (per-class diagonal blocks of the joint posterior, GPML Alg. 3.4 line 9
         generalised to two point sets)."""
-        Xs, Zs = self._transform(X), self._transform(Z)
-        prior = self.kernel_(Xs, Zs)
+        same = Z is X
+        Xs = self._transform(X)
+        Zs = Xs if same else self._transform(Z)
+        prior = self.kernel_(Xs, None if same else Zs)
         if self.posterior_ is None:
             return prior
-        return latent_cross_covariance(self.posterior_, prior, self.kernel_(Xs, self._Xs),
-                                       self.kernel_(Zs, self._Xs))
+        Kx = self.kernel_(Xs, self._Xs)
+        return latent_cross_covariance(self.posterior_, prior, Kx,
+                                       Kx if same else self.kernel_(Zs, self._Xs))
 
     # ----------------------------------------------------------------------------- storage
     def to_dict(self):

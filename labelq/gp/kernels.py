@@ -135,15 +135,14 @@ class SquaredExponential(StationaryKernel):
         V = U if Z is None else self._scale(Z)
         if Z is not None and (out is not None or U.shape[0] > 4 * V.shape[0]):
             # a pool against the training set: the exponent u.v - |u|^2/2 - |v|^2/2 + log s2
-            # comes out of one GEMM with two extra columns, then exp in place (two passes over
-            # the (n, m) buffer instead of five); exp(-x) for x >= -1e-13 can exceed s2 only by
-            # rounding, which we clip
+            # comes out of one GEMM with two extra columns, then exp in place (one pass over
+            # the (n, m) buffer instead of five). Rounding can lift an entry above s2 by a few
+            # ulps where u = v; unlike K(X, X) no factorisation depends on that here.
             log_s2 = np.log(self.signal_variance)
             left = np.column_stack([U, 0.5 * (U * U).sum(1) - log_s2, np.ones(len(U))])
             right = np.column_stack([V, -np.ones(len(V)), -0.5 * (V * V).sum(1)])
             K = np.matmul(left, right.T, out=out)
-            np.exp(K, out=K)
-            return np.minimum(K, self.signal_variance, out=K)
+            return np.exp(K, out=K)
         K = np.matmul(U, V.T, out=out)
         K -= (0.5 * (U * U).sum(1) - np.log(self.signal_variance))[:, None]
         K -= 0.5 * (V * V).sum(1)[None, :]

@@ -127,7 +127,9 @@ def latent_cross_covariance(post, Kxz, Kx, Kz):
     with the training inputs. Returns (m, p) binary or (m, p, C) multi-class (diagonal blocks).
     """
     if post.factor is not None:
-        return Kxz - (post.factor @ Kx.T).T @ (post.factor @ Kz.T)
+        left = post.factor @ Kx.T
+        right = left if Kz is Kx else post.factor @ Kz.T
+        return Kxz - left.T @ right
     if post.multiclass:
         return np.stack([Kxz - Kx @ M @ Kz.T for M in post.precision], axis=2)
     return Kxz - Kx @ post.precision @ Kz.T

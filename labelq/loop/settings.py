@@ -3,6 +3,7 @@
 They are constants rather than options so that every fit of a store, and every rebuild of it, is
 made the same way: a fit is a deterministic function of the label events and the previous fit.
 """
+import os
 
 KERNEL = "se"
 LINK = "logistic"
@@ -38,4 +39,11 @@ CLAIM_SECONDS = 300
 """How long the head of a queue shown to one person is held back from another."""
 
 POOL_CHUNK = 20_000
-"""Candidates scored per chunk: bounds memory on large pools."""
+"""Candidates scored per chunk at most: bounds memory on large pools."""
+
+POOL_CHUNK_BYTES = 96 * 2**20
+"""Work memory per scoring worker: a chunk holds a float64 and a float32 (rows, n_labels) block,
+so chunks shrink as labels grow (96 MiB: 8,388 rows at 1,000 labels)."""
+
+POOL_WORKERS = max(1, min(4, os.cpu_count() or 1))
+"""Threads scoring pool chunks at once (each with one BLAS thread)."""

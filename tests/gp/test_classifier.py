@@ -236,3 +236,18 @@ def test_logistic_probabilities_bounded_for_far_points():
     np.testing.assert_allclose(far, [0.5, 0.5], atol=1e-9)
     mean, var = clf.latent(np.array([[1e6, 1e6]]))
     assert var[0] == pytest.approx(clf.hyperparameters_["signal_variance"])
+
+
+@pytest.mark.parametrize("data", [_binary, _three])
+def test_predict_pool_threads_give_the_same_rows(data):
+    # Source: labelq contract (chunks are independent, so threads change only the timing).
+    X, y = data()
+    clf = GPClassifier(**FAST).fit(X, y)
+    Xt = np.random.default_rng(5).normal(size=(101, 2)) * X.std(0) + X.mean(0)
+    one = clf.predict_pool(Xt, chunk_size=10)
+    two = clf.predict_pool(Xt, chunk_size=10, n_jobs=3)
+    for a, b in zip(one, two):
+        np.testing.assert_allclose(a, b, rtol=1e-12, atol=1e-15)
+    assert clf.predict_pool(Xt[:0]).proba.shape == (0, len(clf.classes_))
+    with pytest.raises(ValueError, match="n_jobs"):
+        clf.predict_pool(Xt, n_jobs=0)
