@@ -11,7 +11,7 @@ from scipy.linalg import cho_solve, solve_triangular
 from scipy.special import log_ndtr
 
 from labelq.gp.links import normal_hazard
-from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky, scaled_inverse
+from labelq.gp.posterior import Posterior, b_matrix, inverse_lower, robust_cholesky
 
 TOLERANCE = 1e-10
 MAX_ITER = 500
@@ -129,8 +129,9 @@ def lml_and_gradient(kernel, X, K, y, tau0=None, nu0=None):
     tau, nu, n_iter, warnings = find_sites(K, y, tau0, nu0)
     value, _, _, sS, L = log_z(K, y, tau, nu)
     b = _mean_weights(K, nu, sS, L)
-    R = scaled_inverse(L, sS)  # Alg. 5.2: R = S^1/2 B^-1 S^1/2
-    # Alg. 5.2: 1/2 tr((b b^T - R) dK)
-    grad = kernel.gradient_contractions(X, K, 0.5 * (np.outer(b, b) - R))
-    post = Posterior(b, R, value, n_iter, {"tau": tau, "nu": nu}, warnings)
+    # Alg. 5.2: 1/2 tr((b b^T - R) dK) with R = S^1/2 B^-1 S^1/2, contracted from the lower
+    # triangle of B^-1 without forming R or the weight matrix
+    b_inv, _ = inverse_lower(L)
+    grad = kernel.structured_gradient_contractions(X, K, [(0.5, b)], sS, b_inv, -0.5)
+    post = Posterior(b, None, value, n_iter, {"tau": tau, "nu": nu}, warnings)
     return value, grad, post
