@@ -256,10 +256,27 @@ class GPClassifier:
             return ep.posterior_from_sites(K, T, state["tau"], state["nu"])
         return laplace.posterior_from_mode(K, T, get_link(self.link), state["a"])
 
-    def _remember_rows(self):
+    def _remember_rows(self, state=None):
+        state = self.posterior_.state if state is None else state
         self._state_by_row = {
-            key: {name: value[i] for name, value in self.posterior_.state.items()}
+            key: {name: value[i] for name, value in state.items()}
             for i, key in enumerate(self._row_keys(self.X_train_, self.codes_))}
+
+    @property
+    def posterior_(self):
+        """The fitted latent posterior (None for a single class). A model rebuilt by
+        `from_dict` factorises it on first use, so a warm refit from a stored model, which
+        needs only its mode, never pays for it."""
+        pending = getattr(self, "_pending_state", None)
+        if pending is not None:
+            self._posterior = self._posterior_from_state(pending)
+            self._pending_state = None
+        return getattr(self, "_posterior", None)
+
+    @posterior_.setter
+    def posterior_(self, value):
+        self._posterior = value
+        self._pending_state = None
 
     def _split(self, theta):
         return np.exp(theta[:-1]), np.exp(theta[-1])

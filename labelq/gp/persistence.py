@@ -79,8 +79,8 @@ def model_from_dict(cls, d):
                    d["n_iter"])
     if d["state"]:
         state = {k: np.asarray(v, dtype=float) for k, v in d["state"].items()}
-        model.posterior_ = model._posterior_from_state(state)
-        model._remember_rows()
+        model._pending_state = state  # the posterior is factorised on first use
+        model._remember_rows(state)
     return model
 
 
