@@ -169,12 +169,13 @@ def scaled_inverse(L, s, with_diagonal=False):
 
 def inverse_lower(L):
     """Lower triangle of B^-1 (upper part zero) and its diagonal, from the lower Cholesky factor
-    L of B: LAPACK potri (see `scaled_inverse`), left unsymmetrised for consumers that read one
-    triangle (BLAS symv, `structured_gradient_contractions`)."""
+    L of B with zeros above the diagonal (as `robust_cholesky` returns it): LAPACK potri (see
+    `scaled_inverse`) leaves L's upper part, here zeros, in place. The result is left
+    unsymmetrised for consumers that read one triangle (BLAS symv,
+    `structured_gradient_contractions`)."""
     inv, info = lapack.dpotri(L, lower=1)
     if info != 0:
-        inv = cho_solve((L, True), np.eye(L.shape[0]), check_finite=False)
-    inv = np.tril(inv) if info != 0 or np.any(np.triu(L, 1)) else inv
+        inv = np.tril(cho_solve((L, True), np.eye(L.shape[0]), check_finite=False))
     return inv, np.diag(inv).copy()
 
 

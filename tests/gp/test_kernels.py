@@ -48,3 +48,43 @@ def test_bad_hyperparameters_and_names():
         make_kernel("se", [1.0], 0.0)
     with pytest.raises(ValueError, match="rq"):
         make_kernel("rq", [1.0], 1.0)
+
+
+@pytest.mark.parametrize("name", ["se", "matern52"])
+@pytest.mark.parametrize("ls", [LS, np.array([1.1])], ids=["ard", "shared"])
+def test_structured_contractions_equal_the_explicit_ones(name, ls):
+    # Source: algebra (G = sum_r c_r v_r v_r^T + m diag(s) M diag(s) written out explicitly).
+    k = make_kernel(name, ls, 1.7)
+    K = k(X)
+    v, u, s = RNG.normal(size=(3, 25))
+    M = RNG.normal(size=(25, 25))
+    M = M + M.T
+    G = 0.5 * np.outer(v, v) - 0.25 * np.outer(u, u) - 0.5 * s[:, None] * M * s[None, :]
+    got = k.structured_gradient_contractions(X, K, [(0.5, v), (-0.25, u)], s, np.tril(M), -0.5)
+    np.testing.assert_allclose(got, k.gradient_contractions(X, K, G), rtol=1e-10, atol=1e-10)
+
+
+@pytest.mark.parametrize("name", ["se", "matern52"])
+def test_pool_kernel_with_buffer_matches_scikit_learn(name):
+    # Source: scikit-learn's RBF / Matern(nu=2.5); the pool path (many rows against few, written
+    # into a caller's buffer) must give the same matrix.
+    pool = RNG.normal(size=(40, 3))
+    reference = ConstantKernel(1.7) * (RBF(LS) if name == "se" else Matern(LS, nu=2.5))
+    k = make_kernel(name, LS, 1.7)
+    out = np.empty((40, 7))
+    got = k(pool, Z, out=out)
+    np.testing.assert_allclose(got, reference(pool, Z), rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(out, reference(pool, Z), rtol=1e-12, atol=1e-14)
+
+
+def test_inverse_lower_is_the_lower_triangle_of_the_inverse():
+    # Source: numpy.linalg.inv as the reference (tests only); B = I + S K S as in GPML eq. 3.26.
+    from labelq.gp.posterior import b_matrix, inverse_lower, robust_cholesky
+
+    s = np.abs(RNG.normal(size=25))
+    B = b_matrix(make_kernel("se", LS, 1.7)(X), s)
+    L, _ = robust_cholesky(B)
+    lower, diagonal = inverse_lower(L)
+    reference = np.linalg.inv(B)
+    np.testing.assert_allclose(lower, np.tril(reference), rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(diagonal, np.diag(reference), rtol=1e-10)
