@@ -197,7 +197,8 @@ class GPClassifier:
             return ep.fit(K, T, start.get("tau"), start.get("nu"))
         link = get_link(self.link)
         if with_gradient:
-            return laplace.lml_and_gradient(kernel, Xs, K, T, link, start.get("a"))
+            return laplace.lml_and_gradient(kernel, Xs, K, T, link, start.get("a"),
+                                            start.get("f"))
         return laplace.fit(K, T, link, start.get("a"))
 
     def fit(self, X, y, warm_start=False, classes=None):
@@ -294,10 +295,10 @@ class GPClassifier:
             kern = make_kernel(self.kernel, *self._split(theta))
             begin = self._last_state
             if binary_laplace and begin and best["state"] is not begin:
-                # Newton starts from the better (at the new kernel) of the last evaluated mode
-                # and the best one so far: after a rejected line-search trial the last mode is
-                # often far from where the search goes next
-                begin = {"a": np.stack([begin["a"], best["state"]["a"]])}
+                # Newton starts from the best (at the new kernel) of the last evaluated mode,
+                # the best one so far (after a rejected line-search trial the last mode is often
+                # far from where the search goes next) and a Newton step from the last latent f
+                begin = {"a": np.stack([begin["a"], best["state"]["a"]]), "f": begin.get("f")}
             value, grad, post = self._engine(kern, Xs, T, begin, True)
             self._last_state = post.state
             if value > best["value"]:
