@@ -53,7 +53,7 @@ _SINGLE_ROUNDOFF = 2.0 ** -24
 
 
 def _factor32(post):
-    if getattr(post, "_factor32_cache", None) is None:
+    if post._factor32_cache is None:
         post._factor32_cache = np.asfortranarray(post.factor, dtype=np.float32)
     return post._factor32_cache
 
@@ -63,7 +63,6 @@ def _trmm_variance(factor, Ks, kss, single, scratch=None):
     single precision also an error estimate u |A k*| |k*| per row (u = 2^-24). `scratch`: an
     optional C-contiguous float32 array of at least Ks's shape, reused between chunks."""
     if single:
-        m = Ks.shape[0]
         if scratch is None:
             scratch = np.empty(Ks.shape, dtype=np.float32)
         K32 = scratch.reshape(-1)[:Ks.size].reshape(Ks.shape)
@@ -75,7 +74,7 @@ def _trmm_variance(factor, Ks, kss, single, scratch=None):
         Vt = V.T  # (m, n), C-contiguous
         np.square(Vt, out=Vt)
         v2 = Vt.sum(axis=1).astype(np.float64)
-        return kss - v2[:m], _SINGLE_ROUNDOFF * np.sqrt(v2[:m]) * k_norm
+        return kss - v2, _SINGLE_ROUNDOFF * np.sqrt(v2) * k_norm
     V = blas.dtrmm(1.0, factor, np.asfortranarray(Ks.T), lower=1, overwrite_b=1)
     return kss - np.einsum("ij,ij->j", V, V)
 
@@ -144,37 +143,29 @@ def b_matrix(K, s):
     return B
 
 
-def scaled_inverse(L, s, with_diagonal=False):
-    """S B^-1 S with S = diag(s), from the lower Cholesky factor L of B (n, n).
+def scaled_inverse(L, s):
+    """S B^-1 S with S = diag(s), from the lower Cholesky factor L of B (n, n), as a full matrix.
 
     GPML forms this matrix explicitly where the algorithm needs it as a matrix (Alg. 3.3 line 6,
     Alg. 5.1 R, Alg. 5.2 R) as two triangular solves against the identity; LAPACK's potri
     computes the same B^-1 from L with about a third of the work (Golub & Van Loan, Matrix
     Computations, sec. 4.2, from memory). Nothing here solves a system by inversion.
-    With `with_diagonal`, also returns diag(B^-1) (n,).
     """
-    inv, info = lapack.dpotri(L, lower=1)
-    if info != 0:  # a zero pivot cannot occur for B = I + S K S; keep the solve as a fallback
-        inv = cho_solve((L, True), np.eye(L.shape[0]), check_finite=False)
-    else:
-        # potri fills the lower triangle; mirror it (upper part zeroed first if L was not clean)
-        inv = np.tril(inv) if np.any(np.triu(L, 1)) else inv
-        inv += inv.T
-        inv[np.diag_indices_from(inv)] *= 0.5
-    diagonal = np.diag(inv).copy()
+    inv, _ = inverse_lower(L)
+    inv += inv.T  # mirror the lower triangle; the diagonal is counted twice
+    inv[np.diag_indices_from(inv)] *= 0.5
     inv *= s[:, None]
     inv *= s[None, :]
-    return (inv, diagonal) if with_diagonal else inv
+    return inv
 
 
 def inverse_lower(L):
     """Lower triangle of B^-1 (upper part zero) and its diagonal, from the lower Cholesky factor
-    L of B with zeros above the diagonal (as `robust_cholesky` returns it): LAPACK potri (see
-    `scaled_inverse`) leaves L's upper part, here zeros, in place. The result is left
-    unsymmetrised for consumers that read one triangle (BLAS symv,
-    `structured_gradient_contractions`)."""
+    L of B with zeros above the diagonal (as `robust_cholesky` returns it): LAPACK potri leaves
+    L's upper part, here zeros, in place. The result is left unsymmetrised for consumers that
+    read one triangle (BLAS symv, `structured_gradient_contractions`)."""
     inv, info = lapack.dpotri(L, lower=1)
-    if info != 0:
+    if info != 0:  # a zero pivot cannot occur for B = I + S K S; keep the solve as a fallback
         inv = np.tril(cho_solve((L, True), np.eye(L.shape[0]), check_finite=False))
     return inv, np.diag(inv).copy()
 

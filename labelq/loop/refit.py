@@ -249,10 +249,8 @@ def _score(clf, state: PoolState, classes, strategy):
         return {"proba": proba, "predicted": np.zeros(n, dtype=np.int64), "p_top": proba[:, 0],
                 "p_low": proba[:, 0], "p_high": proba[:, 0], "entropy": entropy_bits(proba),
                 "margin": zeros, "bald": zeros, "priority": np.zeros(n), "mean": None, "var": None}
-    n_train = max(1, len(clf.codes_))
-    chunk = max(256, min(settings.POOL_CHUNK, settings.POOL_CHUNK_BYTES // (12 * n_train)))
-    with single_blas_thread():
-        pred = clf.predict_pool(state.X, chunk_size=chunk, n_jobs=settings.POOL_WORKERS)
+    with single_blas_thread():  # chunks of predict_pool's default size (a 48 MiB budget)
+        pred = clf.predict_pool(state.X, n_jobs=settings.POOL_WORKERS)
     proba, mean, var = pred.proba, pred.mean, pred.var
     link = settings.LINK if c == 2 else "softmax"
     predicted = np.argmax(proba, axis=1)

@@ -38,13 +38,5 @@ UNCERTAIN_BELOW = 0.8
 CLAIM_SECONDS = 300
 """How long the head of a queue shown to one person is held back from another."""
 
-POOL_CHUNK = 20_000
-"""Candidates scored per chunk at most: bounds memory on large pools."""
-
-POOL_CHUNK_BYTES = 48 * 2**20
-"""Work memory per scoring worker: a chunk holds a float64 and a float32 (rows, n_labels) block,
-so chunks shrink as labels grow (48 MiB: 4,194 rows at 1,000 labels; small chunks are reused
-from chunk to chunk and were faster than 20,000-row ones)."""
-
 POOL_WORKERS = max(1, min(4, os.cpu_count() or 1))
 """Threads scoring pool chunks at once (each with one BLAS thread)."""
