@@ -5,7 +5,7 @@ Pure NumPy; imports nothing of labelq but :mod:`labelq.gp`. Entropies and BALD a
 
 from labelq.acquire.bald import bald_bits
 from labelq.acquire.batch import select_batch
-from labelq.acquire.coldstart import cold_start
+from labelq.acquire.coldstart import TypicalPicks, cold_start, typical_start
 from labelq.acquire.entropy import entropy_bits
 from labelq.acquire.margin import margin
 from labelq.acquire.ranking import rank_order
@@ -13,6 +13,7 @@ from labelq.acquire.scores import STRATEGIES, display_score, priority
 
 __all__ = [
     "STRATEGIES",
+    "TypicalPicks",
     "bald_bits",
     "cold_start",
     "display_score",
@@ -21,4 +22,5 @@ __all__ = [
     "priority",
     "rank_order",
     "select_batch",
+    "typical_start",
 ]

@@ -31,6 +31,7 @@ def select_batch(
     seed=0,
     shortlist=2000,
     noise=None,
+    values=None,
 ):
     """Pick a spread-out batch of ``min(n, n_candidates)`` candidates to label together.
 
@@ -91,6 +92,11 @@ def select_batch(
         Seeds "random" and the Monte Carlo of multi-class "bald".
     shortlist : int
         Shortlist size (raised to ``n`` if smaller).
+    values : array of shape (n_candidates,), optional
+        Priorities already computed by the caller (e.g. EPIG, or any strategy under a mixture of
+        models). When given they order the shortlist instead of ``strategy``'s priority, and
+        rescoring multiplies them by the fraction of latent variance left (as for entropy and
+        margin above), so the first pick is always the highest value.
     noise : float, optional
         Variance of the pick observation; default 1e-6 times the largest latent variance on the
         shortlist (a stand-in for the prior variance scale), small enough to pin the latent and
@@ -110,13 +116,21 @@ def select_batch(
         raise ValueError(f"noise must be a positive finite number, got {noise!r}")
     skipped = check_mask(skipped_mask, proba.shape[0])
     ids = np.asarray(ids)
-    order = rank_order(priority(strategy, proba, mean, var, link, seed), ids, skipped)
+    if values is None and strategy == "epig":
+        raise ValueError("select_batch needs values (the EPIG of each candidate) for 'epig'")
+    if values is None:
+        values = priority(strategy, proba, mean, var, link, seed)
+    elif np.shape(values) != (proba.shape[0],):
+        raise ValueError(f"values must have shape ({proba.shape[0]},), got {np.shape(values)}")
+    order = rank_order(values, ids, skipped)
     if strategy == "random" or n == 0:
         return order[:n]
     mean, var = check_latent(mean, var, link)
     rows = order[: max(shortlist, n)]
+    rescore = (_rescorer(strategy, mean[rows], var[rows], link, seed) if values is None
+               else _left_weighted(np.asarray(values, dtype=float)[rows], var[rows]))
     picks = _greedy_picks(
-        _rescorer(strategy, mean[rows], var[rows], link, seed),
+        rescore,
         var[rows],
         n,
         lambda j: _checked_column(cross_cov(rows, rows[j]), var[rows].shape),
@@ -135,6 +149,15 @@ def _rescorer(strategy, mean, var0, link, seed):
         value = priority(strategy, _class_proba(mean, var_t, link), mean, var_t, link, seed)
         left = np.divide(var_t, var0, out=np.ones_like(var0), where=var0 > 0)
         return value * (left if left.ndim == 1 else left.mean(axis=1))
+
+    return score
+
+
+def _left_weighted(values, var0):
+    """Given priorities times the fraction of latent variance left (mean over classes)."""
+    def score(var_t):
+        left = np.divide(var_t, var0, out=np.ones_like(var0), where=var0 > 0)
+        return values * (left if left.ndim == 1 else left.mean(axis=1))
 
     return score
 

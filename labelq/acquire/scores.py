@@ -7,7 +7,9 @@ from labelq.acquire.checks import check_proba, check_strategy
 from labelq.acquire.entropy import entropy_bits
 from labelq.acquire.margin import margin
 
-STRATEGIES = ("entropy", "margin", "bald", "random")
+STRATEGIES = ("entropy", "margin", "bald", "epig", "random")
+"""Acquisition rules. ``epig`` needs the joint predictive of candidates and targets, so its
+priority comes from :mod:`labelq.acquire.epig` (through labelq.policy), not from this module."""
 
 
 def display_score(strategy, proba, mean, var, link, seed=0):
@@ -37,6 +39,9 @@ def display_score(strategy, proba, mean, var, link, seed=0):
         return margin(proba, mean, var)
     if strategy == "bald":
         return bald_bits(mean, var, link, seed)
+    if strategy == "epig":
+        raise ValueError("strategy 'epig' needs the joint predictive of candidates and targets: "
+                         "use labelq.acquire.epig")
     return np.random.default_rng(seed).uniform(size=proba.shape[0])
 
 

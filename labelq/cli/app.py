@@ -10,11 +10,12 @@ from rich.markup import escape
 
 from labelq import __version__
 from labelq.acquire import STRATEGIES
-from labelq.errors import LabelqError
 from labelq.cli import render
 from labelq.cli.options import (ByOption, DbOption, JsonOption, StrategyOption, db_path, open_store,
                                 user_errors)
-from labelq.loop import actions, maintain, reports
+from labelq.errors import LabelqError
+from labelq.loop import actions, maintain, reports, settings
+from labelq.review.replay import REFERENCE_ROWS
 from labelq.store.migrate import head_revision
 
 app = typer.Typer(
@@ -311,17 +312,23 @@ def session(
 @app.command()
 @user_errors
 def simulate(
-    file: Annotated[Path, typer.Argument(help="A fully labelled CSV.", show_default=False)],
+    file: Annotated[Path, typer.Argument(help="A CSV of candidates with known classes.",
+                                         show_default=False)],
     id_column: Annotated[str, typer.Option("--id", help="Column holding each row's key.")],
     truth: Annotated[str, typer.Option("--truth", help="Column holding the true class.")],
+    truth_file: Annotated[Optional[Path], typer.Option(
+        "--truth-file", help="Read the --truth column from this CSV instead, joined by --id.",
+        show_default=False)] = None,
     strategies: Annotated[str, typer.Option(
-        "--strategies", help="Comma-separated strategies to compare.")] = ",".join(STRATEGIES),
+        "--strategies", help=f"Comma-separated strategies to compare ({', '.join(STRATEGIES)}).")
+    ] = f"{settings.DEFAULT_STRATEGY},random",
     budget: Annotated[int, typer.Option(
-        "--budget", help="Labels to query after the initial ones.", min=1)] = 60,
+        "--budget", help="Labels per replay, from none.", min=2)] = 60,
     seeds: Annotated[int, typer.Option(
-        "--seeds", help="Replays per strategy (seeds 0..K-1).", min=1)] = 5,
-    initial: Annotated[int, typer.Option(
-        "--initial", help="Labels drawn at random before querying.", min=1)] = 4,
+        "--seeds", help="Replays per strategy (seeds 0..K-1).", min=1)] = 3,
+    reference: Annotated[int, typer.Option(
+        "--reference", help="Rows (seeded sample) the full-pool reference model is fitted on; "
+        "0 for none.", min=0)] = REFERENCE_ROWS,
     features: Annotated[Optional[str], typer.Option(
         "--features", help="Comma-separated feature columns (default: every numeric column).",
         show_default=False)] = None,
@@ -329,12 +336,14 @@ def simulate(
         "--plot", help="Also write the learning curves as a PNG.", show_default=False)] = None,
     json: JsonOption = False,
 ):
-    """Replay strategies on a fully labelled CSV and compare their learning curves."""
+    """Replay strategies from zero labels, exactly as `label` would pick, on a CSV whose classes
+    are known, and compare their learning curves with random labelling."""
     names = [check_strategy(s.strip()) for s in strategies.split(",") if s.strip()]
     feature_list = [f.strip() for f in features.split(",")] if features else None
-    with render.progress_bar("replaying") as update:
-        result = reports.simulate_csv(file, id_column, truth, names, budget, seeds, initial,
-                                         features=feature_list, progress=update)
+    with render.progress_bar("replaying", eta=True) as update:
+        result = reports.simulate_csv(file, id_column, truth, names, budget, seeds,
+                                      features=feature_list, truth_file=truth_file,
+                                      reference_rows=reference or 0, progress=update)
     if plot is not None:
         reports.simulate_png(result, plot)
     if json:

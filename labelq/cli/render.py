@@ -9,7 +9,8 @@ from contextlib import contextmanager
 
 from rich.console import Console
 from rich.markup import escape
-from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
+                           TimeRemainingColumn)
 from rich.table import Table
 
 CAUTION = ("Probabilities are the model's estimates from the labels given so far. Validate them "
@@ -127,11 +128,15 @@ def key_value_table(pairs) -> Table:
 
 
 @contextmanager
-def progress_bar(description: str, enabled: bool = True):
-    """A Rich progress bar on stderr; yields ``update(done, total)``. Silent when not a terminal."""
+def progress_bar(description: str, enabled: bool = True, eta: bool = False):
+    """A Rich progress bar on stderr; yields ``update(done, total)``. Silent when not a terminal.
+    With ``eta``, it also shows an estimate of the time left."""
     con = err_console()
-    bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
-                   TimeElapsedColumn(), console=con, transient=True,
+    columns = [TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+               TimeElapsedColumn()]
+    if eta:
+        columns += [TextColumn("left"), TimeRemainingColumn()]
+    bar = Progress(*columns, console=con, transient=True,
                    disable=not (enabled and con.is_terminal))
     with bar:
         task = bar.add_task(description, total=None)
@@ -180,8 +185,16 @@ def print_status(con: Console, doc) -> None:
                   + (f", log marginal likelihood {lml:.2f}" if lml is not None else "")
                   + (", hyperparameters re-learnt" if fit["hyperparameters_relearnt"] else "")
                   + ")" + (" - stale, refits on the next command" if doc["stale"] else ""))
+        if fit.get("hyper_mode"):
+            con.print(f"Hyperparameters {HYPER_WORDS[fit['hyper_mode']]}"
+                      + _hyper_detail(fit), markup=False)
         for w in fit["warnings"] or []:
             con.print(f"  note: {w}", markup=False)
+        learnt = doc.get("last_relearn")
+        if learnt is not None and learnt["expected_accuracy_change"] is not None:
+            con.print(f"Last learnt at fit {learnt['fit']} ({learnt['n_labels']} labels): the "
+                      f"model's expected accuracy changed by "
+                      f"{learnt['expected_accuracy_change']:+.3f}", markup=False)
     snap = doc["snapshot"]
     if snap is not None:
         kappa = snap["kappa"]
@@ -193,6 +206,27 @@ def print_status(con: Console, doc) -> None:
         ]))
     con.print(f"[bold]Advice:[/bold] {escape(doc['advice']['message'])}")
     con.print(CAUTION, style="dim")
+
+
+HYPER_WORDS = {
+    "average": "averaged over a grid, weighted by their evidence",
+    "learnt": "learnt by maximising the evidence on this fit",
+    "held": "held from the last learning",
+}
+
+
+def _hyper_detail(fit) -> str:
+    """Top grid weight, or the learnt signal variance and lengthscale(s), in brackets."""
+    hp = fit.get("hyperparameters") or {}
+    if fit["hyper_mode"] == "average" and "top_weight" in hp:
+        return f" (top grid point holds {hp['top_weight']:.0%} of the weight)"
+    ls = hp.get("lengthscale")
+    if ls is None:
+        return ""
+    ls_text = (f"{ls:.3g}" if not isinstance(ls, list)
+               else f"{min(ls):.3g}-{max(ls):.3g} (one per feature)")
+    return (f" (lengthscale {ls_text}, signal variance {hp['signal_variance']:.3g};"
+            f" learnt at {fit.get('learnt_at') or 0} labels)")
 
 
 def print_history(con: Console, rows, chart: str) -> None:
@@ -208,13 +242,22 @@ def print_history(con: Console, rows, chart: str) -> None:
                           ("kappa", "right"), ("at (UTC)", "left")]:
         table.add_column(name, justify=justify, no_wrap=True)
     for r in rows:
-        table.add_row(str(r["fit"]), "-" if r["session"] is None else str(r["session"]),
+        table.add_row(str(r["fit"]) + ("*" if r.get("relearnt") else ""),
+                      "-" if r["session"] is None else str(r["session"]),
                       str(r["n_labels"]), fmt_num(r["mean_entropy"]), f"{r['n_uncertain']:,}",
                       fmt_num(r["expected_accuracy"]), fmt_num(r["kappa"]), short_time(r["at"]))
     con.print(table)
     con.print("entropy: mean over unlabelled candidates, bits; uncertain: top p below 0.8;\n"
               "exp. acc.: the model's own estimate; kappa: agreement with the previous fit",
               style="dim")
+    for r in rows:
+        if r.get("relearnt"):
+            change = r.get("accuracy_change")
+            con.print(f"* fit {r['fit']}: hyperparameters learnt at {r['n_labels']} labels"
+                      + (f" (from the grid average)" if r.get("hyper_mode_before") == "average"
+                         else "")
+                      + ("" if change is None else
+                         f"; expected accuracy {change:+.3f}"), markup=False, style="dim")
     con.print(chart)
 
 
@@ -223,14 +266,21 @@ def print_simulation(con: Console, result, chart: str) -> None:
     table = Table(show_edge=False, pad_edge=False, header_style="bold")
     for name, justify in [("strategy", "left"), ("final accuracy", "right"), ("sd", "right"),
                           ("labels to 95%", "right"), ("labels to 99%", "right"),
-                          ("area under curve", "right")]:
+                          ("area under curve", "right"), ("se", "right")]:
         table.add_column(name, justify=justify)
     for name, s in result["strategies"].items():
         table.add_row(escape(name), fmt_num(s["accuracy_mean"][-1]), fmt_num(s["accuracy_sd"][-1]),
                       "-" if s["labels_to_95"] is None else str(s["labels_to_95"]),
                       "-" if s["labels_to_99"] is None else str(s["labels_to_99"]),
-                      fmt_num(s["auc"]))
-    con.print(f"Full-pool accuracy (a model fitted on every row): "
-              f"{result['full_pool_accuracy']:.3f}")
+                      fmt_num(s["auc"]), fmt_num(s["auc_se"]))
+    if result["full_pool_accuracy"] is None:
+        con.print("No full-pool reference model was fitted (--reference 0).")
+    else:
+        con.print(f"Full-pool accuracy: {result['full_pool_accuracy']:.3f} (a model with learnt "
+                  f"hyperparameters fitted on the true classes of {result['reference_rows']:,} "
+                  f"rows, scored on every row)")
     con.print(table)
+    con.print(f"Each replay starts from no labels and picks as `label` would (seeds "
+              f"{', '.join(map(str, result['seeds']))}); area under curve = mean accuracy over "
+              f"labels 1-{result['budget']}, se its standard error over seeds.", style="dim")
     con.print(chart)

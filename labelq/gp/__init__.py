@@ -1,5 +1,7 @@
-"""Gaussian-process classification engine: kernels, links, Laplace, EP and the estimator."""
+"""Gaussian-process classification engine: kernels, links, Laplace, EP, the estimator and the
+average over a hyperparameter grid."""
+from labelq.gp.averaging import GridAverage, load_model
 from labelq.gp.classifier import GPClassifier, Prediction
 from labelq.gp.predictive import predictive_probability
 
-__all__ = ["GPClassifier", "Prediction", "predictive_probability"]
+__all__ = ["GPClassifier", "GridAverage", "Prediction", "load_model", "predictive_probability"]

@@ -9,7 +9,7 @@ import numpy as np
 
 FORMAT = "labelq.gp.GPClassifier/1"
 SETTINGS = ("kernel", "link", "inference", "ard", "optimize", "lengthscale", "signal_variance",
-            "standardize", "n_restarts", "random_state", "max_optimizer_iter")
+            "standardize", "n_restarts", "random_state", "max_optimizer_iter", "softmax_points")
 
 
 def class_array(labels):

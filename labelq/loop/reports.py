@@ -14,7 +14,7 @@ from typing import Optional
 import numpy as np
 
 from labelq.errors import LabelqError
-from labelq.gp import GPClassifier
+from labelq.gp.averaging import load_model
 from labelq.gp.intervals import probability_interval
 from labelq.ingest import read_candidates
 from labelq.loop import settings
@@ -66,7 +66,17 @@ def _fit_summary(fit) -> Optional[dict]:
         "at": fit.at,
         "warnings": fit.warnings,
         "hyperparameters_relearnt": bool(fit.full_optimize),
+        "hyper_mode": fit.hyper_mode,
+        "learnt_at": fit.learnt_at,
     }
+
+
+def relearns(rows) -> list[dict]:
+    """The history rows where the hyperparameters were learnt (the hand-over from the grid average
+    or a relearn), each with the change in the model's expected accuracy it caused."""
+    return [{"fit": r["fit"], "n_labels": r["n_labels"], "from": r["hyper_mode_before"],
+             "expected_accuracy_change": r["accuracy_change"]}
+            for r in rows if r["relearnt"]]
 
 
 def _learning_fits(store):
@@ -84,6 +94,7 @@ def status(store) -> dict:
     advice = stopping_advice(kappas, per_class)
     last = store.last_fit()
     snap = snaps.get(last.id) if last is not None else None
+    learnt = relearns(history(store))
     return {
         "db": str(store.path),
         "candidates": counts["candidates"],
@@ -94,6 +105,7 @@ def status(store) -> dict:
         "last_fit": _fit_summary(last),
         "stale": not is_current(store, last),
         "snapshot": _snapshot_doc(snap),
+        "last_relearn": learnt[-1] if learnt else None,
         "advice": {"stop": advice.stop, "message": advice.message, "figures": advice.figures,
                    "flagged_classes": advice.flagged_classes},
         "caution": "Probabilities are the model's estimates from the labels given so far.",
@@ -109,11 +121,17 @@ def _snapshot_doc(snap) -> Optional[dict]:
 
 
 def history(store) -> list[dict]:
-    """One row per fit (history --json contract)."""
+    """One row per fit (history --json contract), with how its hyperparameters were set
+    (``hyper_mode``), whether this fit learnt them (``relearnt``) and, where it did, the change in
+    the model's expected accuracy against the fit before (``accuracy_change``)."""
     fits = {f.id: f for f in store.fits()}
     rows = []
+    before = None
     for s in store.snapshots():
         fit = fits.get(s["fit_id"])
+        relearnt = bool(fit and fit.full_optimize)
+        change = (s["expected_accuracy"] - before["expected_accuracy"]
+                  if relearnt and before is not None else None)
         rows.append({
             "fit": s["fit_id"],
             "session": fit.session_id if fit else None,
@@ -123,7 +141,12 @@ def history(store) -> list[dict]:
             "expected_accuracy": s["expected_accuracy"],
             "kappa": s["agreement_kappa"],
             "at": fit.at if fit else None,
+            "hyper_mode": fit.hyper_mode if fit else None,
+            "hyper_mode_before": before["hyper_mode"] if before else None,
+            "relearnt": relearnt,
+            "accuracy_change": change,
         })
+        before = rows[-1]
     return rows
 
 
@@ -148,10 +171,11 @@ def history_png(rows, path: Path) -> None:
     write_png(check_output(path), history_series(rows), HISTORY_TITLE, "labels", "value")
 
 
-def _model(fit) -> Optional[GPClassifier]:
+def _model(fit):
+    """The fit's model (GPClassifier or GridAverage), None when it has none."""
     if fit is None or fit.model is None:
         return None
-    return GPClassifier.from_dict(fit.model)
+    return load_model(fit.model)
 
 
 def candidate_view(store, key: str) -> dict:
@@ -171,7 +195,7 @@ def candidate_view(store, key: str) -> dict:
         proba = clf.predict_proba(x)[0]
         m, v = clf.latent(x)
         for k, c in enumerate(classes):
-            lo, hi = probability_interval(m, v, np.array([k]), link=settings.LINK)
+            lo, hi = probability_interval(m, v, np.array([k]), link=settings.POLICY.link)
             view["p"][c] = {"p": float(proba[k]), "low": float(lo[0]), "high": float(hi[0])}
     labels = store.current_labels()
     if labels:
@@ -259,26 +283,62 @@ class SimulationInputError(LabelqError):
     """The replay file cannot be replayed (too few rows or classes)."""
 
 
+def read_truth(path: Path, id_column: str, truth: str) -> dict:
+    """Key -> true class from a CSV with columns ``id_column`` and ``truth``; one clear error
+    naming the file, line and column for a missing column, an empty cell or a repeated key."""
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as handle:
+            reader = csv.DictReader(handle)
+            header = reader.fieldnames or []
+            for column in (id_column, truth):
+                if column not in header:
+                    raise SimulationInputError(
+                        f"{path}: no column {column!r} (columns: {', '.join(header) or 'none'})")
+            found = {}
+            for line, row in enumerate(reader, start=2):
+                key, value = (row.get(id_column) or "").strip(), (row.get(truth) or "").strip()
+                if not key or not value:
+                    empty = id_column if not key else truth
+                    raise SimulationInputError(f"{path}, line {line}, column {empty!r}: empty cell")
+                if key in found:
+                    raise SimulationInputError(
+                        f"{path}, line {line}, column {id_column!r}: key {key!r} appears twice")
+                found[key] = value
+    except OSError as exc:
+        raise SimulationInputError(f"{path}: cannot read ({exc.strerror or exc})") from None
+    except UnicodeDecodeError:
+        raise SimulationInputError(f"{path}: not UTF-8 text") from None
+    return found
+
+
 def simulate_csv(path: Path, id_column: str, truth: str, strategies, budget: int, seeds: int,
-                 initial: int, features=None, progress=None) -> dict:
-    """Replay ``strategies`` on a fully labelled CSV (see labelq.review.simulate)."""
-    table = read_candidates(path, id_column, features=features, labels_column=truth)
-    y = np.array(table.labels, dtype=object)
-    if any(v is None for v in table.labels):
-        missing = table.keys[[v is None for v in table.labels].index(True)]
-        raise SimulationInputError(f"{path}: row {missing!r} has no value in column {truth!r}")
-    if len(set(y)) < 2:
-        raise SimulationInputError(f"{path}: column {truth!r} holds fewer than two classes")
-    if initial + budget > len(y):
-        raise SimulationInputError(
-            f"{path}: {len(y)} rows cannot supply {initial} initial labels plus a budget of {budget}")
-    X = table.X
-    scale = X.std(axis=0)
-    scale[~(scale > 0)] = 1.0
-    X = (X - X.mean(axis=0)) / scale
-    result = simulate(X, y, strategies=tuple(strategies), budget=budget,
-                      seeds=tuple(range(seeds)), n_initial=initial, kernel=settings.KERNEL,
-                      link=settings.LINK, progress=progress)
+                 features=None, truth_file: Optional[Path] = None, reference_rows=1000,
+                 progress=None) -> dict:
+    """Replay ``strategies`` on a fully labelled CSV with the label loop's own policy (see
+    labelq.review.simulate); the true classes come from column ``truth`` of ``path`` or, with
+    ``truth_file``, of that file joined by ``id_column``."""
+    if truth_file is None:
+        table = read_candidates(path, id_column, features=features, labels_column=truth)
+        labels = table.labels
+        if any(v is None for v in labels):
+            missing = table.keys[[v is None for v in labels].index(True)]
+            raise SimulationInputError(f"{path}: row {missing!r} has no value in column {truth!r}")
+    else:
+        table = read_candidates(path, id_column, features=features)
+        known = read_truth(truth_file, id_column, truth)
+        absent = [k for k in table.keys if k not in known]
+        if absent:
+            raise SimulationInputError(f"{truth_file}: no {truth!r} for key {absent[0]!r} of {path} "
+                                       f"({len(absent):,} keys missing)")
+        labels = [known[k] for k in table.keys]
+    y = np.array(labels, dtype=object)
+    if len(set(labels)) < 2:
+        raise SimulationInputError(f"{truth_file or path}: column {truth!r} holds fewer than two classes")
+    if budget > len(y):
+        raise SimulationInputError(f"{path}: {len(y)} rows cannot supply a budget of {budget}")
+    result = simulate(table.X, y, strategies=tuple(strategies), budget=budget,
+                      seeds=tuple(range(seeds)), settings=settings.POLICY,
+                      reference_rows=reference_rows, progress=progress)
     result["file"] = str(path)
     return result
 

@@ -1,33 +1,22 @@
-"""The modelling choices the label loop makes, in one place.
+"""The choices the label loop makes, in one place.
 
-They are constants rather than options so that every fit of a store, and every rebuild of it, is
-made the same way: a fit is a deterministic function of the label events and the previous fit.
+How a fit is made and the pool ranked is the fit policy's (`POLICY`, labelq.policy), the same
+settings `labelq simulate` replays; they are recorded with every fit. The rest here is how the
+loop stores and shows its work. Constants rather than options, so that every fit of a store, and
+every rebuild of it, is made the same way.
 """
 import os
 
-KERNEL = "se"
-LINK = "logistic"
-INFERENCE = "laplace"
+from labelq.policy import PolicySettings
 
-DEFAULT_STRATEGY = "margin"
-"""Strategy used when the user names none. Margin rather than entropy: replayed on the orchard
-demo pool (3 classes, `labelq simulate`, 64 labels, 2 seeds) entropy and BALD kept choosing
-outlying apples far from every label and ended at pool accuracy 0.33 and 0.49, margin at 0.74
-(random 0.74); on scikit-learn's breast-cancer data margin and entropy tie and beat random.
-Uncertainty sampling's pull towards outliers is a known failure mode (Settles 2009, "Active
-Learning Literature Survey", sec. on density-weighted methods)."""
+POLICY = PolicySettings()
+"""The fit policy's defaults; the strategy the user asks for replaces `POLICY.strategy`."""
 
-HEAD_SIZE = 20
-"""The first HEAD_SIZE ranks of a fit are a spread-out batch (acquire.select_batch)."""
-
-COLD_START_SIZE = 50
-"""With no labels, or one class only, this many farthest-point picks lead the queue."""
+DEFAULT_STRATEGY = POLICY.strategy
+"""Strategy used when the user names none (see PolicySettings.strategy)."""
 
 THREADED_FIT_FROM = 400
 """Fits on fewer labels than this run BLAS on one thread (small matrices; threads cost more)."""
-
-LML_DROP_PER_LABEL = 0.1
-"""A warm fit whose log marginal likelihood per label falls by more than this re-learns."""
 
 KEEP_MODELS = 20
 """Fits older than the newest KEEP_MODELS drop their stored model (derived; rebuildable)."""

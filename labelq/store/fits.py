@@ -18,7 +18,7 @@ from labelq.store.timestamps import utc_now
 
 _INSERT_SCORE = (
     "INSERT INTO scores (candidate_id, fit_id, probabilities, predicted, p_top, p_low, p_high,"
-    " entropy, margin, bald, priority, rank) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
+    " entropy, margin, bald, priority, rank, reason) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
 )
 _SCORE_COLUMNS = (
     "candidate_id, probabilities, predicted, p_top, p_low, p_high, entropy, margin, bald, priority, rank"
@@ -50,6 +50,7 @@ class FitsMixin(StoreCore):
         rank: Sequence[Optional[int]],
         snapshot: dict[str, Any],
         keep_models: Optional[int] = None,
+        reasons: Optional[Sequence[Optional[str]]] = None,
     ) -> int:
         """Store a fit, replace all scores by this fit's (N candidates) and add its snapshot; the fit id.
 
@@ -59,7 +60,9 @@ class FitsMixin(StoreCore):
         event_mark, model, warnings, full_optimize and optionally fingerprint and info;
         ``snapshot`` the keys mean_entropy, n_uncertain, expected_accuracy, class_counts and
         optionally agreement_kappa. With ``keep_models``, only the newest that many fits keep their
-        model (the rest are derived data and can be remade by a rebuild).
+        model (the rest are derived data and can be remade by a rebuild). ``reasons`` (N,) says why
+        each row of the head of the queue is there (None elsewhere). ``fit`` may also hold
+        settings, hyper_mode and learnt_at (how the fit was made).
         """
         n = len(candidate_ids)
         probabilities = np.asarray(probabilities, dtype=np.float64)
@@ -68,6 +71,9 @@ class FitsMixin(StoreCore):
             raise ValueError(f"scores must have {n} rows, one per candidate id")
         if len(rank) != n:
             raise ValueError(f"rank must have {n} entries, got {len(rank)}")
+        reasons = [None] * n if reasons is None else list(reasons)
+        if len(reasons) != n:
+            raise ValueError(f"reasons must have {n} entries, got {len(reasons)}")
         with self._write() as connection:
             n_classes = len(class_names(connection))
             if probabilities.shape[1] != n_classes:
@@ -99,6 +105,7 @@ class FitsMixin(StoreCore):
                         columns[0][part].astype(np.int64).tolist(),
                         *(column[part].astype(np.float64).tolist() for column in columns[1:]),
                         [None if r is None or r < 0 else int(r) for r in rank[part].tolist()],
+                        reasons[part],
                     ),
                 )
             connection.execute(
@@ -179,7 +186,7 @@ class FitsMixin(StoreCore):
         )
         sql = (
             "SELECT sc.candidate_id, c.key, c.meta, sc.probabilities, sc.predicted, sc.p_top, sc.entropy,"
-            " sc.margin, sc.bald, sc.priority, sc.rank"
+            " sc.margin, sc.bald, sc.priority, sc.rank, sc.reason"
             " FROM scores sc JOIN candidates c ON c.id = sc.candidate_id"
             f" WHERE +sc.fit_id = {_LAST_FIT} AND sc.rank IS NOT NULL"
             " AND NOT EXISTS (SELECT 1 FROM label_events l"
@@ -204,8 +211,10 @@ class FitsMixin(StoreCore):
                 bald=bald_,
                 priority=priority_,
                 rank=rank_,
+                reason=reason_,
             )
-            for cid, key, meta, blob, predicted, p_top, entropy_, margin_, bald_, priority_, rank_ in rows
+            for (cid, key, meta, blob, predicted, p_top, entropy_, margin_, bald_, priority_, rank_,
+                 reason_) in rows
         ]
 
     def scores(self, ids: Optional[Sequence[int]] = None, chunk_size: int = 100_000) -> Iterator[ScoreChunk]:
@@ -284,6 +293,9 @@ _FIT_FIELDS = (
     "full_optimize",
     "fingerprint",
     "info",
+    "settings",
+    "hyper_mode",
+    "learnt_at",
 )
 
 

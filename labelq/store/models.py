@@ -145,6 +145,12 @@ class Fit(Base):
     info: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON)
     warnings: Mapped[list[str]] = mapped_column(JSON)
     full_optimize: Mapped[bool] = mapped_column()
+    settings: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON)
+    """The fit policy's settings (labelq.policy.PolicySettings.to_dict); None before revision 0004."""
+    hyper_mode: Mapped[Optional[str]] = mapped_column(String)
+    """How the hyperparameters were set: average (grid), learnt (this fit) or held."""
+    learnt_at: Mapped[Optional[int]] = mapped_column(Integer)
+    """Label count at the last gradient-based learning of the hyperparameters (0: never)."""
 
 
 class Score(Base):
@@ -164,6 +170,8 @@ class Score(Base):
     bald: Mapped[float] = mapped_column(Float)
     priority: Mapped[float] = mapped_column(Float)
     rank: Mapped[Optional[int]] = mapped_column(Integer, index=True)
+    reason: Mapped[Optional[str]] = mapped_column(String)
+    """Why a row of the head of the queue is there, in words; None below the head."""
 
 
 class Snapshot(Base):

@@ -62,6 +62,9 @@ class FitRecord:
     full_optimize: bool
     fingerprint: Optional[str] = None
     info: Optional[dict[str, Any]] = None
+    settings: Optional[dict[str, Any]] = None
+    hyper_mode: Optional[str] = None
+    learnt_at: Optional[int] = None
 
 
 @dataclass(frozen=True)
@@ -79,6 +82,7 @@ class ScoreRow:
     bald: float
     priority: float
     rank: int
+    reason: Optional[str] = None
 
 
 @dataclass(frozen=True)

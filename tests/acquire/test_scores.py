@@ -14,9 +14,15 @@ def _binary_pool():
     return np.stack([1.0 - p, p], axis=1), mean, var
 
 
-def test_strategies_are_the_documented_four():
+def test_strategies_are_the_documented_five():
     # DESIGN.md vocabulary.
-    assert STRATEGIES == ("entropy", "margin", "bald", "random")
+    assert STRATEGIES == ("entropy", "margin", "bald", "epig", "random")
+
+
+def test_epig_needs_the_joint_predictive():
+    proba, mean, var = _binary_pool()
+    with pytest.raises(ValueError, match="epig"):
+        display_score("epig", proba, mean, var, "probit")
 
 
 def test_display_scores_are_the_criteria_themselves():

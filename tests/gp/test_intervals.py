@@ -12,7 +12,6 @@ from scipy.special import expit, ndtr, softmax
 from scipy.stats import norm
 
 from labelq.gp.intervals import probability_interval
-from labelq.gp.schedule import LEARN_FROM, ard_due, learning_due
 
 
 @pytest.mark.parametrize("link,g", [("logistic", expit), ("probit", ndtr)])
@@ -47,11 +46,3 @@ def test_multiclass_interval_against_a_large_sample():
         ref_lo, ref_hi = np.quantile(pk, [0.05, 0.95])
         assert abs(low[i] - ref_lo) < 0.03 and abs(high[i] - ref_hi) < 0.03
         assert 0.0 <= low[i] <= high[i] <= 1.0
-
-
-def test_schedule():
-    """The hyperparameter schedule of labelq.gp.schedule (this project's rule, see its docstring)."""
-    assert not learning_due(LEARN_FROM - 1, None)
-    assert learning_due(LEARN_FROM, None)
-    assert not learning_due(31, 16) and learning_due(32, 16)
-    assert not ard_due(299, 30) and ard_due(300, 30)

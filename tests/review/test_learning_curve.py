@@ -4,7 +4,6 @@ import numpy as np
 import pytest
 
 from labelq.review.learning_curve import curve_summary, labels_to_reach, normalised_auc
-from labelq.review.replay import initial_labels
 
 LABELS = np.array([4, 5, 6, 7, 8])
 
@@ -45,12 +44,11 @@ def test_curve_summary_keys_and_spread():
     assert out["labels"] == [4, 5] and out["entropy_mean"] == [1.0, 1.0]
     assert out["labels_to_95"] is None  # 0.95 * 0.8 = 0.76: one of two runs, median infinite
     assert out["auc"] == pytest.approx(0.7)
+    # per-run areas 0.6 and 0.8: sample sd 0.1414, standard error 0.1414 / sqrt(2) = 0.1
+    assert out["auc_se"] == pytest.approx(0.1)
 
 
-@pytest.mark.parametrize("seed", range(10))
-def test_initial_labels_cover_two_classes_and_repeat_per_seed(seed):
-    """Common practice, no published source: seeded starts with at least two classes."""
-    y = np.array(["a"] * 90 + ["b"] * 8 + ["c"] * 2)
-    first = initial_labels(y, 4, seed)
-    assert np.array_equal(first, initial_labels(y, 4, seed))
-    assert np.unique(first).size == 4 and np.unique(y[first]).size >= 2
+def test_curve_summary_without_reference():
+    """No reference model: labels to reach a fraction of it are unknown (None)."""
+    out = curve_summary(np.array([1, 2]), np.array([[0.6, 0.9]]), np.ones((1, 2)), None)
+    assert out["labels_to_95"] is None and out["labels_to_99"] is None and out["auc_se"] == 0.0

@@ -20,7 +20,7 @@ from .conftest import CLASSES, FEATURES, table_rows
 
 def test_there_is_exactly_one_head() -> None:
     heads = ScriptDirectory.from_config(alembic_config()).get_heads()
-    assert heads == [head_revision()] == ["0003"]
+    assert heads == [head_revision()] == ["0004"]
 
 
 def test_revisions_build_exactly_the_models(store: Store) -> None:
@@ -68,7 +68,7 @@ def test_open_upgrades_a_first_revision_store_with_its_data(tmp_path: Path) -> N
         assert store.last_fit() is None
         assert store.claim([record.id], "ana") == [record.id]
     with closing(sqlite3.connect(path)) as connection:
-        assert connection.execute("SELECT version_num FROM alembic_version").fetchall() == [("0003",)]
+        assert connection.execute("SELECT version_num FROM alembic_version").fetchall() == [("0004",)]
 
 
 def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:

@@ -1,0 +1,33 @@
+"""Fit policy: how each fit was made (settings, hyperparameter mode, last learning) and why each
+row of the head of the queue is there.
+
+Revision ID: 0004
+Revises: 0003
+Create Date: 2026-12-02 08:20:00
+"""
+
+import sqlalchemy as sa
+from alembic import op
+
+revision = "0004"
+down_revision = "0003"
+branch_labels = None
+depends_on = None
+
+
+def upgrade() -> None:
+    with op.batch_alter_table("fits") as batch:
+        batch.add_column(sa.Column("settings", sa.JSON(), nullable=True))
+        batch.add_column(sa.Column("hyper_mode", sa.String(), nullable=True))
+        batch.add_column(sa.Column("learnt_at", sa.Integer(), nullable=True))
+    with op.batch_alter_table("scores") as batch:
+        batch.add_column(sa.Column("reason", sa.String(), nullable=True))
+
+
+def downgrade() -> None:
+    with op.batch_alter_table("scores") as batch:
+        batch.drop_column("reason")
+    with op.batch_alter_table("fits") as batch:
+        batch.drop_column("learnt_at")
+        batch.drop_column("hyper_mode")
+        batch.drop_column("settings")

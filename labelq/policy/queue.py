@@ -1,0 +1,113 @@
+"""Order the queue: the head (a spread-out batch, or the cold start's picks), then the rest by
+priority, skipped candidates last; and say in words why each row of the head is there."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from labelq.acquire import cold_start, rank_order, select_batch, typical_start
+from labelq.policy.scoring import PoolScores
+from labelq.policy.settings import PolicySettings
+
+
+@dataclass
+class Queue:
+    """rank (N,) int: 1.. for unlabelled rows, -1 for labelled ones; reasons (N,) object: why a
+    row of the head is there (None below the head); cold: the head is a cold start."""
+
+    rank: np.ndarray
+    reasons: np.ndarray
+    cold: bool
+
+    def first(self) -> int:
+        """Row of rank 1 (the next candidate to label); -1 when nothing is unlabelled."""
+        top = np.flatnonzero(self.rank == 1)
+        return int(top[0]) if top.size else -1
+
+
+def _strategy_reason(strategy, proba_row, classes):
+    """Why the strategy asks for a candidate, in a grader's words."""
+    if strategy == "margin":
+        a, b = np.argsort(-proba_row)[:2]
+        return f"near the {classes[a]}/{classes[b]} boundary"
+    if strategy == "entropy":
+        return "the model cannot tell its classes apart here"
+    if strategy == "bald":
+        return "the model's own uncertainty is highest here"
+    if strategy == "epig":
+        return "informs the predictions of many similar candidates"
+    return "drawn at random"
+
+
+def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strategy: str,
+              unlabelled: np.ndarray, skipped_ids, n_classes_seen: int, classes,
+              head_size: int | None = None) -> Queue:
+    """The queue for one fit.
+
+    X (N, d) standardised; ids (N,) candidate ids ascending; ``skipped_ids`` candidate ids
+    skipped; ``n_classes_seen`` classes with at least one label (fewer than two: cold start);
+    ``head_size`` defaults to the settings' (a replay asks for 1: the first pick is the same).
+    """
+    head_size = settings.head_size if head_size is None else head_size
+    n = len(ids)
+    rank = np.full(n, -1, dtype=np.int64)
+    reasons = np.full(n, None, dtype=object)
+    rows = np.flatnonzero(unlabelled)
+    cold = n_classes_seen < 2
+    if rows.size == 0:
+        return Queue(rank, reasons, cold)
+    skipped = np.isin(ids[rows], np.asarray(skipped_ids, dtype=np.int64))
+    order = rows[rank_order(scores.priority[rows], ids[rows], skipped)]
+    if strategy == "random":
+        head = order[:head_size]
+        reasons[head] = "drawn at random"
+    elif cold:
+        head = _cold_head(X, rows[~skipped], np.flatnonzero(~unlabelled), settings, head_size,
+                          reasons)
+    else:
+        head = _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size)
+        for t, r in enumerate(head):
+            why = _strategy_reason(strategy, scores.proba[r], classes)
+            reasons[r] = why if t == 0 else f"{why}; chosen to spread the batch"
+    rest = order[~np.isin(order, head)]
+    final = np.concatenate([head, rest])
+    rank[final] = np.arange(1, final.size + 1)
+    return Queue(rank, reasons, cold)
+
+
+def _cold_head(X, free, labelled, settings, head_size, reasons):
+    """Cold-start picks among ``free`` rows: typical points of clusters, or farthest points."""
+    if free.size == 0:
+        return free
+    both = np.concatenate([free, labelled])
+    known = np.arange(free.size, both.size) if labelled.size else None
+    n = min(head_size, free.size)
+    if settings.cold_start == "typical":
+        picks = typical_start(X[both], n, labelled=known, seed=settings.seed)
+        head = both[picks.rows]
+        for r, size in zip(head, picks.cluster_size):
+            reasons[r] = f"represents a cluster of {int(size):,} unlabelled candidates"
+        return head
+    head = both[np.asarray(cold_start(X[both], n, labelled=known, seed=settings.seed))]
+    reasons[head] = "far from every labelled candidate"
+    return head
+
+
+def _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size):
+    """The first ``head_size`` picks as a spread-out batch (see labelq.acquire.select_batch)."""
+    cache = {}
+
+    def cross_cov(shortlist, j):
+        # select_batch passes the same shortlist on every call: its posterior covariance is
+        # computed once (one kernel block and one product) and read column by column.
+        if "cov" not in cache:
+            Xs = X[rows[shortlist]]
+            cache["cov"] = model.latent_cross_cov(Xs, Xs)
+            cache["where"] = {int(r): i for i, r in enumerate(shortlist)}
+        return cache["cov"][:, cache["where"][int(j)]]
+
+    picks = select_batch(strategy, scores.proba[rows], scores.mean[rows], scores.var[rows],
+                         scores.link, head_size, cross_cov, ids[rows], skipped_mask=skipped,
+                         values=scores.priority[rows])
+    return rows[np.asarray(picks, dtype=np.int64)]
