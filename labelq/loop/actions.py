@@ -102,6 +102,7 @@ class QueueRow:
     score: float
     meta: dict
     skipped: bool
+    reason: Optional[str] = None
 
 
 def row_score(strategy: str, row) -> float:
@@ -155,6 +156,7 @@ def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
                                                  seconds=settings.CLAIM_SECONDS):
             break
     rows = [QueueRow(r.rank, r.candidate_id, r.key, r.predicted, r.probabilities, r.p_top,
-                     0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped)
+                     0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped,
+                     r.reason)
             for r in found]
     return Queue(rows, shown, cold, fit)

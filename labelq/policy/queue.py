@@ -42,14 +42,17 @@ def _strategy_reason(strategy, proba_row, classes):
 
 def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strategy: str,
               unlabelled: np.ndarray, skipped_ids, n_classes_seen: int, classes,
-              head_size: int | None = None) -> Queue:
+              batch_size: int | None = None) -> Queue:
     """The queue for one fit.
 
     X (N, d) standardised; ids (N,) candidate ids ascending; ``skipped_ids`` candidate ids
     skipped; ``n_classes_seen`` classes with at least one label (fewer than two: cold start);
-    ``head_size`` defaults to the settings' (a replay asks for 1: the first pick is the same).
+    ``batch_size``: rows of the spread-out batch, default the settings' head_size (a replay asks
+    for 1: the greedy batch's first pick does not depend on the batch size, whereas the cold
+    start's clusters do, so the cold start always takes head_size).
     """
-    head_size = settings.head_size if head_size is None else head_size
+    head_size = settings.head_size
+    batch_size = head_size if batch_size is None else batch_size
     n = len(ids)
     rank = np.full(n, -1, dtype=np.int64)
     reasons = np.full(n, None, dtype=object)
@@ -66,7 +69,7 @@ def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strat
         head = _cold_head(X, rows[~skipped], np.flatnonzero(~unlabelled), settings, head_size,
                           reasons)
     else:
-        head = _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size)
+        head = _spread_head(model, X, ids, scores, strategy, rows, skipped, batch_size)
         for t, r in enumerate(head):
             why = _strategy_reason(strategy, scores.proba[r], classes)
             reasons[r] = why if t == 0 else f"{why}; chosen to spread the batch"

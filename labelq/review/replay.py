@@ -71,7 +71,7 @@ def replay_run(X, y, classes, settings: PolicySettings, budget: int,
             break
         seen = len(set(y[picks].tolist()))
         queue = rank_pool(outcome.model if outcome else None, X, ids, scores, settings,
-                          settings.strategy, unlabelled, [], seen, classes, head_size=1)
+                          settings.strategy, unlabelled, [], seen, classes, batch_size=1)
         row = queue.first()
         picks.append(row)
         unlabelled[row] = False
