@@ -18,7 +18,7 @@ CAUTION = ("Probabilities are the model's estimates from the labels given so far
            "local rules and licensed practice.")
 
 SCORE_NAMES = {"entropy": "entropy (bits)", "margin": "margin (p1-p2)", "bald": "BALD (bits)",
-               "random": "random draw", "cold-start": "spread pick"}
+               "epig": "EPIG (bits)", "random": "random draw"}
 BINARY_MARGIN = "margin (sd)"
 """Binary margin is |mean| / sqrt(1 + var) of the latent: in units of predictive spread."""
 
@@ -82,6 +82,7 @@ def queue_rows_json(queue, classes) -> list[dict]:
             "p": {c: round_p(p) for c, p in zip(classes, row.probabilities)},
             "score": round(float(row.score), 4),
             "strategy": queue.strategy,
+            "reason": row.reason,
             "meta": row.meta,
         })
     return out
@@ -91,29 +92,39 @@ def queue_heading(queue) -> str:
     """One line above the queue saying how it was ranked."""
     fit = queue.fit
     if queue.cold_start:
-        return ("Cold start: fewer than two classes have labels, so these candidates are spread "
-                "out across the feature space rather than ranked by the model.")
-    return (f"Ranked by {queue.strategy} after fit {fit.id} on {fit.n_labels} labels; the first "
-            f"rows form a spread-out batch.")
+        return ("Cold start: fewer than two classes have labels, so the model cannot rank yet. "
+                "These are typical candidates of clusters of the pool, each standing for many "
+                "others; no prediction is shown because there is none yet.")
+    return (f"Ranked by {queue.strategy} after fit {fit.id} on {fit.n_labels} labels. Rows marked "
+            f"+ form a batch chosen together and spread out, so their scores need not be in "
+            f"order.")
 
 
 def queue_table(queue, classes, meta_columns) -> Table:
-    """The queue as an aligned table: rank, key, predicted class, p, score, metadata."""
+    """The queue as an aligned table: rank (+ for rows of the spread-out batch), key, predicted
+    class, p, score, why the row is there, metadata. A cold start has no prediction, so it shows
+    only the rank, key, why and metadata."""
     table = Table(show_edge=False, pad_edge=False, header_style="bold")
-    table.add_column("#", justify="right")
+    table.add_column("#", justify="right", no_wrap=True)
     table.add_column("key", overflow="fold")
-    table.add_column("predicted")
-    table.add_column("p", justify="right")
-    score_name = (BINARY_MARGIN if queue.strategy == "margin" and len(classes) == 2
-                  else SCORE_NAMES.get(queue.strategy, "score"))
-    table.add_column(score_name, justify="right")
+    cold = queue.cold_start
+    if not cold:
+        table.add_column("predicted")
+        table.add_column("p", justify="right")
+        score_name = (BINARY_MARGIN if queue.strategy == "margin" and len(classes) == 2
+                      else SCORE_NAMES.get(queue.strategy, "score"))
+        table.add_column(score_name, justify="right")
+    table.add_column("why", overflow="fold", min_width=16)
     for name in meta_columns:
         table.add_column(escape(name), overflow="fold")
     for row in queue.rows:
         claimed = "" if not getattr(row, "skipped", False) else " (skipped)"
-        table.add_row(str(row.rank), escape(row.key) + claimed, escape(classes[int(row.predicted)]),
-                      fmt_p(row.p_top), fmt_num(row.score),
-                      *[escape(str(row.meta.get(m, ""))) for m in meta_columns])
+        batch = "+" if row.reason and not cold and queue.strategy != "random" else ""
+        cells = [f"{batch}{row.rank}", escape(row.key) + claimed]
+        if not cold:
+            cells += [escape(classes[int(row.predicted)]), fmt_p(row.p_top), fmt_num(row.score)]
+        cells.append(escape(row.reason or f"ranked by {queue.strategy}"))
+        table.add_row(*cells, *[escape(str(row.meta.get(m, ""))) for m in meta_columns])
     return table
 
 

@@ -11,14 +11,6 @@ from labelq.cli import render
 from labelq.errors import LabelqError
 from labelq.loop import actions, reports
 
-WHY = {
-    "entropy": "the model is least sure which class it belongs to (highest entropy)",
-    "margin": "its two likeliest classes are the closest to a tie (smallest p1 - p2)",
-    "margin-binary": "it lies closest to the decision boundary, in units of the model's spread",
-    "bald": "its label would tell the model most about its latent function (BALD)",
-    "random": "it was drawn at random (the baseline strategy)",
-}
-
 HELP = "a class name or number, s skip, u undo, ? details, q quit"
 
 
@@ -28,14 +20,16 @@ def _card(con: Console, queue, classes) -> None:
     con.rule(f"[bold]{escape(row.key)}[/bold]  (rank {row.rank})")
     if row.meta:
         con.print("  ".join(f"{k}: {v}" for k, v in row.meta.items()), markup=False)
-    probs = "  ".join(f"{i + 1}) {c} {render.fmt_p(p)}" for i, (c, p)
-                      in enumerate(zip(classes, row.probabilities)))
-    con.print(f"predicted {classes[int(row.predicted)]}    {probs}", markup=False)
     if queue.cold_start:
-        con.print("why: cold start - a candidate far from those already seen, to cover the pool")
+        con.print("classes: " + "  ".join(f"{i + 1}) {c}" for i, c in enumerate(classes))
+                  + "    (no prediction yet: cold start)", markup=False)
     else:
-        why = "margin-binary" if queue.strategy == "margin" and len(classes) == 2 else queue.strategy
-        con.print(f"why: {WHY[why]} (score {row.score:.3f})")
+        probs = "  ".join(f"{i + 1}) {c} {render.fmt_p(p)}" for i, (c, p)
+                          in enumerate(zip(classes, row.probabilities)))
+        con.print(f"predicted {classes[int(row.predicted)]}    {probs}", markup=False)
+    why = row.reason or f"ranked by {queue.strategy}"
+    score = "" if queue.cold_start else f" ({queue.strategy} score {row.score:.3f})"
+    con.print(f"why: {why}{score}", markup=False)
 
 
 def _answer(con: Console) -> str:

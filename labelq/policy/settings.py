@@ -47,6 +47,9 @@ class PolicySettings:
     """EPIG is computed for this many candidates with the largest BALD (its upper bound)."""
     epig_samples: int = 256
     """Joint draws per candidate-target pair for multi-class EPIG."""
+    detail_weight: float = 0.01
+    """BALD and EPIG of a grid average use only the members with at least this weight
+    (renormalised); the probabilities use every member kept by the average."""
     seed: int = 0
     """Seeds the random strategy, the targets and every Monte Carlo draw of a fit."""
 

@@ -92,6 +92,19 @@ def reference_accuracy(X, y, classes, settings: PolicySettings, rows: Optional[i
     return float(np.mean(np.asarray(classes)[proba.argmax(axis=1)] == y)), int(use.size)
 
 
+POOL_FRACTION = 0.9
+"""Each seed replays on its own seeded random share of the rows (the same for every strategy), so
+that seeds differ even for strategies that are deterministic given the pool."""
+
+
+def seed_rows(n: int, fraction: float, seed: int) -> np.ndarray:
+    """Sorted row indices of the seeded random ``fraction`` of ``n`` rows replayed under ``seed``."""
+    if fraction >= 1.0:
+        return np.arange(n)
+    size = max(2, int(round(fraction * n)))
+    return np.sort(np.random.default_rng(seed).choice(n, size, replace=False))
+
+
 def simulate(
     X,
     y,
@@ -100,13 +113,16 @@ def simulate(
     seeds: Sequence[int] = (0, 1, 2),
     settings: Optional[PolicySettings] = None,
     reference_rows: Optional[int] = REFERENCE_ROWS,
+    pool_fraction: float = POOL_FRACTION,
     progress: Optional[Callable[[int, int], None]] = None,
 ) -> dict:
     """Replay each strategy on a fully labelled pool and summarise its learning curve.
 
     Every run starts from zero labels and follows the label loop's policy (``settings``, default
-    `PolicySettings()`, with its strategy and seed replaced per run); features are standardised
-    once; BLAS runs on one thread (see labelq.review.blas_threads).
+    `PolicySettings()`, with its strategy and seed replaced per run) on the seed's own random
+    ``pool_fraction`` of the rows (see `seed_rows`; 1.0 replays the whole pool under every seed),
+    and measures the accuracy over those rows. Each seed's rows are standardised as a store would
+    standardise them at import; BLAS runs on one thread (see labelq.review.blas_threads).
 
     Parameters
     ----------
@@ -118,13 +134,14 @@ def simulate(
     settings : the policy replayed (default: the label loop's defaults)
     reference_rows : rows of the seeded sample the reference model is fitted on (None: all;
         0: no reference model, and no labels_to_95/99)
+    pool_fraction : share of the rows each seed replays on, in (0, 1]
     progress : optional callable(done_fits, total_fits), called after every fit
 
     Returns
     -------
     dict (JSON-ready): ``{"strategies": {name: {"labels", "accuracy_mean", "accuracy_sd",
     "entropy_mean", "labels_to_95", "labels_to_99", "auc", "auc_se", "relearns"}},
-    "full_pool_accuracy", "reference_rows", "budget", "seeds", "settings"}``; see
+    "full_pool_accuracy", "reference_rows", "budget", "seeds", "pool_fraction", "settings"}``; see
     :func:`labelq.review.learning_curve.curve_summary`.
     """
     X = np.asarray(X, dtype=float)
@@ -141,6 +158,10 @@ def simulate(
         raise ValueError(f"need 2 <= budget <= {y.size}, got budget={budget}")
     if not seeds:
         raise ValueError("simulate needs at least one seed")
+    if not 0.0 < pool_fraction <= 1.0:
+        raise ValueError(f"pool_fraction must be in (0, 1], got {pool_fraction!r}")
+    if budget > len(seed_rows(y.size, pool_fraction, 0)):
+        raise ValueError(f"a budget of {budget} exceeds the rows replayed per seed")
     settings = settings or PolicySettings()
     total = len(strategies) * len(seeds) * budget + (1 if reference_rows != 0 else 0)
     done = 0
@@ -152,14 +173,18 @@ def simulate(
             progress(done, total)
 
     Xs = standardise(X)
-    median = median_distance(Xs)
     if progress is not None:
         progress(0, total)
     with single_blas_thread():
         result = {}
         for strategy in strategies:
-            runs = [replay_run(Xs, y, classes, settings.with_(strategy=strategy, seed=int(seed)),
-                               budget, tick, median) for seed in seeds]
+            runs = []
+            for seed in seeds:
+                # the seed's pool standardised on its own, as the store would import it
+                rows = seed_rows(y.size, pool_fraction, int(seed))
+                runs.append(replay_run(standardise(X[rows]), y[rows], classes,
+                                       settings.with_(strategy=strategy, seed=int(seed)), budget,
+                                       tick))
             result[strategy] = {"runs": runs}
         full_accuracy, used = None, 0
         if reference_rows != 0:
@@ -178,5 +203,6 @@ def simulate(
         "reference_rows": used,
         "budget": int(budget),
         "seeds": [int(s) for s in seeds],
+        "pool_fraction": float(pool_fraction),
         "settings": settings.to_dict(),
     }

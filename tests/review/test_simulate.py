@@ -23,7 +23,7 @@ def test_contract_on_a_small_pool():
     out = simulate(X, y, strategies=("entropy", "random"), budget=6, seeds=(0, 1),
                    progress=lambda done, total: calls.append((done, total)))
     assert set(out) == {"strategies", "full_pool_accuracy", "reference_rows", "budget", "seeds",
-                        "settings"}
+                        "pool_fraction", "settings"}
     assert json.loads(json.dumps(out)) == out
     assert out["budget"] == 6 and out["seeds"] == [0, 1] and out["reference_rows"] == 60
     assert 0.5 < out["full_pool_accuracy"] <= 1.0
@@ -58,8 +58,17 @@ def test_three_classes():
     assert all(0.0 <= a <= 1.0 for a in out["strategies"]["entropy"]["accuracy_mean"])
 
 
+def test_seeds_replay_their_own_share_of_the_pool():
+    """Each seed replays on its own seeded 90% of the rows, the same for every strategy
+    (common practice of resampling the pool between repetitions)."""
+    from labelq.review.replay import seed_rows
+    a, b = seed_rows(100, 0.9, 0), seed_rows(100, 0.9, 1)
+    assert len(a) == len(b) == 90 and not np.array_equal(a, b)
+    assert np.array_equal(a, seed_rows(100, 0.9, 0)) and len(seed_rows(100, 1.0, 3)) == 100
+
+
 @pytest.mark.parametrize("kwargs", [{"strategies": ("greedy",)}, {"budget": 100}, {"budget": 1},
-                                    {"seeds": ()}])
+                                    {"seeds": ()}, {"pool_fraction": 0.0}])
 def test_rejects_bad_settings(kwargs):
     """Common practice, no published source."""
     X, y = _two_blobs()
