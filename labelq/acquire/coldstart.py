@@ -317,3 +317,39 @@ def _mean_neighbour_distance(X, candidates, reference, k):
         nearest = np.maximum(squared[:, :k], 0.0)
         out[first : first + block] = np.sqrt(nearest, dtype=float).mean(axis=1)
     return out
+
+
+def weighted_spread_order(X, rows, weights, labelled=None, cap=np.inf):
+    """Order ``rows`` so that each next row is far from the rows labelled or ordered before it,
+    weighted: next = argmax_r weights[r] * min(cap, distance(X[r], nearest of labelled and
+    earlier rows)).
+
+    With nothing labelled the heaviest row comes first. A farthest-point traversal (Gonzalez
+    1985) weighted by ``weights``, e.g. the square roots of the cluster sizes of typical picks:
+    the order covers the pool early (a grader sees other classes soon), and with the distance
+    capped (e.g. at the pool's median pairwise distance) a far, small cluster (an outlier) gains
+    nothing from being far. Our combination; no published source. Ties go to the earlier row.
+
+    X (n_candidates, n_features) standardised; rows (k,) int; weights (k,) positive; labelled
+    (m,) int rows; cap > 0. Returns the (k,) rows reordered.
+    """
+    X = _check_features(X)
+    rows = np.asarray(rows, dtype=np.int64)
+    weights = np.asarray(weights, dtype=float)
+    if weights.shape != rows.shape or (weights <= 0).any():
+        raise ValueError(f"weights must be positive with shape {rows.shape}, got {weights!r}")
+    labelled = _check_labelled(labelled, X.shape[0])
+    if rows.size == 0:
+        return rows
+    nearest = np.full(rows.size, np.inf)
+    if labelled.size:
+        _update_nearest(X[rows], X[labelled], nearest)
+    order = np.empty(rows.size, dtype=np.int64)
+    left = np.ones(rows.size, dtype=bool)
+    for t in range(rows.size):
+        reach = np.minimum(np.sqrt(nearest), cap) if np.isfinite(nearest).any() else 1.0
+        gain = np.where(left, weights * reach, -np.inf)
+        j = int(np.argmax(gain))
+        order[t], left[j] = rows[j], False
+        _update_nearest(X[rows], X[rows[j]:rows[j] + 1], nearest)
+    return order

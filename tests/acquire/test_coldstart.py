@@ -250,3 +250,22 @@ def test_typical_bad_inputs_are_named():
         typical_start(X, 2, n_neighbours=2.5)
     with pytest.raises(ValueError, match="density_sample.*1"):
         typical_start(X, 2, density_sample=1)
+
+
+def test_weighted_spread_order_covers_early_and_keeps_an_outlier_last():
+    """Typical picks of three blobs and a far outlier, ordered by sqrt(cluster size) times the
+    capped distance to what came before (our rule, see weighted_spread_order): the heaviest pick
+    first, the blobs before the outlier; labelled rows push the next pick away from them."""
+    from labelq.acquire.coldstart import weighted_spread_order
+
+    rng = np.random.default_rng(0)
+    centres = ([0.0, 0.0], [8.0, 0.0], [0.0, 8.0])
+    X = np.vstack([rng.normal(c, 1.0, (200, 2)) for c in centres] + [np.array([[50.0, 50.0]])])
+    rows = np.array([5, 205, 405, 600])
+    weights = np.sqrt([150.0, 200.0, 180.0, 1.0])
+    order = weighted_spread_order(X, rows, weights, cap=8.0)
+    assert order[0] == 205 and order[-1] == 600
+    # a label in the second blob: the first pick now comes from another blob
+    assert weighted_spread_order(X, rows, weights, labelled=np.array([210]), cap=8.0)[0] != 205
+    with pytest.raises(ValueError, match="weights"):
+        weighted_spread_order(X, rows, -weights)
