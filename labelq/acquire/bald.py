@@ -9,15 +9,12 @@ import numpy as np
 from labelq.acquire.checks import check_count, check_latent
 from labelq.acquire.entropy import entropy_last_axis
 from labelq.gp import predictive_probability
+from labelq.gp.links import get_link
 
 # Houlsby et al. 2011: h(Phi(x)) ~ exp(-x^2 / (pi ln 2)), i.e. a Gaussian with
 # variance C^2 = pi ln 2 / 2, which makes the expected conditional entropy a Gaussian integral.
 _HOULSBY_C2 = np.pi * np.log(2.0) / 2.0
 
-# logistic(f) ~ Phi(sqrt(pi / 8) f) (MacKay 1992, "The evidence framework applied to
-# classification networks"; also Rasmussen & Williams 2006, GPML Sec. 3.4 - section
-# number from memory).
-_LOGISTIC_TO_PROBIT2 = np.pi / 8.0
 
 # Elements of one (candidates, samples, classes) Monte Carlo block: 2**22 doubles = 32 MiB.
 _BLOCK_ELEMENTS = 1 << 22
@@ -66,14 +63,14 @@ def bald_bits(mean, var, link, seed=0, n_samples=1000):
     ndarray of shape (n_candidates,)
     """
     mean, var = check_latent(mean, var, link)
-    if link == "softmax":
+    likelihood = get_link(link)
+    if likelihood.n_latent is None:  # softmax
         n_samples = check_count(n_samples, "n_samples")
         if n_samples == 0:
             raise ValueError("n_samples must be positive, got 0")
         return _softmax_monte_carlo(mean, var, seed, n_samples)
-    if link == "logistic":
-        mean, var = np.sqrt(_LOGISTIC_TO_PROBIT2) * mean, _LOGISTIC_TO_PROBIT2 * var
-    return _houlsby_probit(mean, var)
+    s = likelihood.probit_scale  # the logistic as a probit, sigma(f) ~ Phi(s f)
+    return _houlsby_probit(s * mean, s * s * var)
 
 
 def _houlsby_probit(mean, var):

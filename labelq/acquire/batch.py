@@ -13,6 +13,7 @@ from labelq.acquire.checks import (
 from labelq.acquire.ranking import rank_order
 from labelq.acquire.scores import STRATEGIES, priority
 from labelq.gp import predictive_probability
+from labelq.gp.links import get_link
 
 # Default pick noise relative to the largest latent variance on the shortlist.
 _RELATIVE_NOISE = 1e-6
@@ -169,9 +170,9 @@ the shortlist matters there, and 256 points keep the error to a few 1e-3 at an e
 
 def _class_proba(mean, var, link):
     """Class probabilities (m, n_classes) from the latent, via labelq.gp."""
-    points = RESCORE_POINTS if link == "softmax" else None
-    p = predictive_probability(mean, var, link, n_points=points)
-    return p if link == "softmax" else np.stack([1.0 - p, p], axis=1)
+    multi = get_link(link).n_latent is None  # softmax: one latent per class
+    p = predictive_probability(mean, var, link, n_points=RESCORE_POINTS if multi else None)
+    return p if multi else np.stack([1.0 - p, p], axis=1)
 
 
 def _checked_column(column, shape):

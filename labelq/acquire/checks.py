@@ -5,7 +5,9 @@ Each check returns a float64 array and raises ValueError naming the argument and
 
 import numpy as np
 
-LINKS = ("probit", "logistic", "softmax")
+from labelq.gp.links import LIKELIHOODS, get_link
+
+LINKS = tuple(LIKELIHOODS)
 
 # Rows of class probabilities may be off from summing to one by accumulated rounding only.
 _SUM_TOLERANCE = 1e-6
@@ -35,13 +37,12 @@ def check_latent(mean, var, link):
     Binary links ("probit", "logistic") take shape (n_candidates,); "softmax" takes
     (n_candidates, n_classes). Variances must be finite and non-negative.
     """
-    if link not in LINKS:
-        raise ValueError(f"link must be one of {LINKS}, got {link!r}")
+    link = get_link(link).name  # a likelihood object or its name
     if mean is None or var is None:
         raise ValueError(f"a latent mean and var are needed here, got mean={mean!r}, var={var!r}")
     mean = np.asarray(mean, dtype=float)
     var = np.asarray(var, dtype=float)
-    ndim = 2 if link == "softmax" else 1
+    ndim = 2 if get_link(link).n_latent is None else 1
     if mean.ndim != ndim:
         raise ValueError(f"mean for link {link!r} must be {ndim}-D, got shape {mean.shape}")
     if var.shape != mean.shape:

@@ -14,12 +14,10 @@ import numpy as np
 from scipy.special import ndtr, owens_t
 
 from labelq.acquire.entropy import entropy_last_axis
+from labelq.gp.links import get_link
 
 BINARY_LINKS = ("probit", "logistic")
 
-# logistic(f) ~ Phi(sqrt(pi / 8) f) (MacKay 1992, "The evidence framework applied to
-# classification networks"; Rasmussen & Williams 2006, GPML Sec. 3.4 - section from memory).
-_LOGISTIC_TO_PROBIT2 = np.pi / 8.0
 
 # Tables and weights may be off from summing to one, or below zero, by accumulated rounding only.
 _SUM_TOLERANCE = 1e-6
@@ -137,16 +135,15 @@ def binary_joint(mean_c, var_c, mean_t, var_t, cov_ct, link="probit"):
     -------
     ndarray of shape (n_candidates, n_targets, 2, 2)
     """
-    if link not in BINARY_LINKS:
+    if get_link(link).name not in BINARY_LINKS:
         raise ValueError(f"link must be one of {BINARY_LINKS}, got {link!r}")
     mean_c, var_c = _check_gaussian(mean_c, var_c, "mean_c", "var_c", ndim=1)
     mean_t, var_t = _check_gaussian(mean_t, var_t, "mean_t", "var_t", ndim=1)
     shape = (mean_c.shape[0], mean_t.shape[0])
     cov_ct = _check_cross_covariance(cov_ct, var_c[:, None], var_t[None], shape)
-    if link == "logistic":
-        scale2 = _LOGISTIC_TO_PROBIT2
-        mean_c, mean_t = np.sqrt(scale2) * mean_c, np.sqrt(scale2) * mean_t
-        var_c, var_t, cov_ct = scale2 * var_c, scale2 * var_t, scale2 * cov_ct
+    scale = get_link(link).probit_scale  # sigma(f) ~ Phi(s f) for the logistic, s = 1 for the probit
+    mean_c, mean_t = scale * mean_c, scale * mean_t
+    var_c, var_t, cov_ct = scale**2 * var_c, scale**2 * var_t, scale**2 * cov_ct
     sd_c, sd_t = np.sqrt(1.0 + var_c), np.sqrt(1.0 + var_t)  # latent plus unit probit noise
     h, k = mean_c / sd_c, mean_t / sd_t
     p_c, p_t = ndtr(h)[:, None], ndtr(k)[None, :]  # GPML eq. 3.82

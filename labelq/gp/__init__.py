@@ -2,6 +2,7 @@
 average over a hyperparameter grid."""
 from labelq.gp.averaging import GridAverage, load_model
 from labelq.gp.classifier import GPClassifier, Prediction
-from labelq.gp.predictive import predictive_probability
+from labelq.gp.links import predictive_probability, probability_interval
 
-__all__ = ["GPClassifier", "GridAverage", "Prediction", "load_model", "predictive_probability"]
+__all__ = ["GPClassifier", "GridAverage", "Prediction", "load_model", "predictive_probability",
+           "probability_interval"]

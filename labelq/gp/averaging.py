@@ -107,6 +107,11 @@ class GridAverage:
                                  "members": len(self.members_)}
 
     @property
+    def likelihood_(self):
+        """The members' likelihood object (labelq.gp.links)."""
+        return self.members_[0].likelihood_
+
+    @property
     def best_member_(self):
         """The member with the largest posterior weight."""
         return self.members_[int(np.argmax(self.weights_))]

@@ -13,11 +13,10 @@ import numpy as np
 from labelq.gp import ep, laplace, multiclass
 from labelq.gp.hyperparameters import bounds, maximise, median_distance
 from labelq.gp.kernels import KERNELS, make_kernel
-from labelq.gp.links import get_link
+from labelq.gp.links import BINARY_LINKS, LIKELIHOODS, get_link
 from labelq.gp.persistence import (class_array, load_json, model_from_dict, model_to_dict,
                                    save_json)
 from labelq.gp.posterior import latent_cross_covariance, latent_moments
-from labelq.gp.predictive import predictive_probability
 
 Prediction = namedtuple("Prediction", ["proba", "mean", "var"])
 Prediction.__doc__ = """Pool prediction: proba (n, C), latent mean and var ((n,) binary, (n, C))."""
@@ -125,7 +124,9 @@ class GPClassifier:
     def _check_settings(self, n_classes):
         if self.kernel not in KERNELS:
             raise ValueError(f"kernel must be one of {sorted(KERNELS)}, got {self.kernel!r}")
-        get_link(self.link)
+        if self.link not in BINARY_LINKS:
+            raise ValueError(f"link must be one of {sorted(BINARY_LINKS)} (multi-class models use "
+                             f"softmax), got {self.link!r}")
         if self.inference not in INFERENCES:
             raise ValueError(f"inference must be one of {INFERENCES}, got {self.inference!r}")
         if self.inference == "ep" and self.link != "probit":
@@ -337,13 +338,18 @@ class GPClassifier:
         Ks = self.kernel_(Xs, self._Xs, out=buffers[0][:len(Xs)])
         return latent_moments(self.posterior_, Ks, kss, precision, buffers[1])
 
+    @property
+    def likelihood_(self):
+        """The fitted model's likelihood object (labelq.gp.links): softmax for more than two
+        classes, else the binary link."""
+        self._check_fitted()
+        return LIKELIHOODS["softmax"] if self.n_classes_ > 2 else get_link(self.link)
+
     def _proba_from_latent(self, mean, var):
         if self.n_classes_ == 1:
             return np.ones((len(mean), 1))
-        if self.n_classes_ > 2:
-            return predictive_probability(mean, var, "softmax", n_points=self.softmax_points)
-        p1 = predictive_probability(mean, var, self.link)
-        return np.column_stack([1.0 - p1, p1])
+        p = self.likelihood_.average(mean, var, self.softmax_points)
+        return p if self.n_classes_ > 2 else np.column_stack([1.0 - p, p])
 
     def latent(self, X):
         """Latent predictive (mean, variance): (n,) each for binary (latent of classes_[1],

@@ -13,35 +13,27 @@ statistic.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import expit, ndtr, softmax
+from scipy.special import softmax
 
 Z95 = 1.6448536269514722
 """Standard normal 95% quantile (common knowledge; scipy.stats.norm.ppf(0.95))."""
 
-_LINKS = {"logistic": expit, "probit": ndtr}
+
+def binary_interval(mean, var, cls, inverse_link):
+    """5-95% interval of the probability of class ``cls`` (0 or 1) when P(class 1 | f) =
+    inverse_link(f), f ~ N(mean, var): the link of the latent's quantiles mean -/+ 1.645 sd
+    (a monotone map keeps quantiles). mean, var, cls (n,); returns (low, high), each (n,)."""
+    sd = np.sqrt(np.maximum(var, 0.0))
+    lo1, hi1 = inverse_link(mean - Z95 * sd), inverse_link(mean + Z95 * sd)
+    is1 = np.asarray(cls) == 1
+    return np.where(is1, lo1, 1.0 - hi1), np.where(is1, hi1, 1.0 - lo1)
 
 
-def probability_interval(mean, var, cls, link="logistic", lower=0.05, upper=0.95, n_draws=256,
-                         seed=0, chunk_size=20_000):
-    """5-95% interval (by default) of the probability of class ``cls`` under the latent predictive.
-
-    mean, var: (n,) for a binary model (latent of class 1) or (n, C) for a multi-class one.
-    cls: (n,) int, the class whose probability is bounded (e.g. the predicted class).
-    Returns (low, high), each (n,).
-    """
-    mean = np.asarray(mean, dtype=float)
-    var = np.maximum(np.asarray(var, dtype=float), 0.0)
-    cls = np.asarray(cls, dtype=int)
-    if mean.ndim == 1:
-        if lower != 0.05 or upper != 0.95:
-            raise ValueError("binary intervals are implemented for the 5-95% range only")
-        g = _LINKS.get(link)
-        if g is None:
-            raise ValueError(f"unknown link {link!r}")
-        sd = np.sqrt(var)
-        lo1, hi1 = g(mean - Z95 * sd), g(mean + Z95 * sd)
-        is1 = cls == 1
-        return np.where(is1, lo1, 1.0 - hi1), np.where(is1, hi1, 1.0 - lo1)
+def softmax_interval(mean, var, cls, lower=0.05, upper=0.95, n_draws=256, seed=0,
+                     chunk_size=20_000):
+    """``lower``-``upper`` quantiles of the softmax probability of class ``cls`` (n,) when the
+    class latents are independent N(mean, var), (n, C), by seeded Monte Carlo; (low, high)."""
+    var = np.maximum(var, 0.0)
     rng = np.random.default_rng(seed)
     n, c = mean.shape
     eps = rng.standard_normal((n_draws, c))

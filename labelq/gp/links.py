@@ -1,11 +1,23 @@
-"""Likelihood link functions for binary GP classification.
+"""Likelihoods of GP classification, one small class each: logistic and probit (binary), softmax
+(multi-class). A fitted GPClassifier holds one (`likelihood_`); everything that maps a Gaussian
+latent to class probabilities asks it, instead of testing a link's name.
 
-Each link gives log p(y | f) for targets y in {-1, +1} and its first three derivatives with
-respect to the latent f (GPML eq. 3.15 for the logistic, eq. 3.16 for the probit). All forms are
-written so that |f| up to 1e3 gives finite values (no overflow, no NaN).
+Each likelihood gives
+- ``average(mean, var)``: the class probability averaged over f ~ N(mean, var) (GPML eq. 3.25,
+  3.82; numerics in labelq.gp.predictive);
+- ``interval(mean, var, cls)``: the 5-95% interval of class ``cls``'s probability
+  (labelq.gp.intervals);
+- binary ones: ``derivatives(y, f)``, log p(y | f) for targets y in {-1, +1} and its first three
+  derivatives in f (GPML eq. 3.15 for the logistic, eq. 3.16 for the probit), finite for |f| up
+  to 1e3; and ``probit_scale``, s with link(f) ~ Phi(s f) (1 for the probit), which the
+  closed-form BALD and EPIG use.
 """
 import numpy as np
-from scipy.special import erfcx, expit, log_ndtr
+from scipy.special import erfcx, expit, log_ndtr, ndtr
+
+from labelq.gp.intervals import binary_interval, softmax_interval
+from labelq.gp.predictive import (check_pair, logistic_average, probit_average,
+                                  softmax_average)
 
 _SQRT_2_OVER_PI = np.sqrt(2.0 / np.pi)
 
@@ -24,6 +36,18 @@ class Logistic:
     """Logistic link, p(y | f) = sigma(y f) = 1 / (1 + exp(-y f)) (GPML eq. 3.15)."""
 
     name = "logistic"
+    n_latent = 1
+    probit_scale = np.sqrt(np.pi / 8.0)
+    """sigma(f) ~ Phi(sqrt(pi / 8) f) (MacKay 1992, "The evidence framework applied to
+    classification networks"; GPML sec. 3.4 - section number from memory)."""
+
+    def average(self, mean, var, n_points=None):
+        """E[sigma(f)], f ~ N(mean, var), (n,) (labelq.gp.predictive.logistic_average)."""
+        return logistic_average(mean, var)
+
+    def interval(self, mean, var, cls):
+        """5-95% interval of P(cls | x), cls in {0, 1} per row."""
+        return binary_interval(mean, var, cls, expit)
 
     def derivatives(self, y, f):
         """Return (log p, d1, d2, d3): log-likelihood and derivatives in f, each shape (n,).
@@ -45,6 +69,16 @@ class Probit:
     """Probit link, p(y | f) = Phi(y f) (GPML eq. 3.16)."""
 
     name = "probit"
+    n_latent = 1
+    probit_scale = 1.0
+
+    def average(self, mean, var, n_points=None):
+        """E[Phi(f)] = Phi(mean / sqrt(1 + var)) (GPML eq. 3.82), (n,)."""
+        return probit_average(mean, var)
+
+    def interval(self, mean, var, cls):
+        """5-95% interval of P(cls | x), cls in {0, 1} per row."""
+        return binary_interval(mean, var, cls, ndtr)
 
     def derivatives(self, y, f):
         """Return (log p, d1, d2, d3): log-likelihood and derivatives in f, each shape (n,).
@@ -60,11 +94,59 @@ class Probit:
         return log_ndtr(z), y * r, -rz, y * (rz * (2.0 * r + z) - r)
 
 
-LINKS = {"logistic": Logistic(), "probit": Probit()}
+class Softmax:
+    """Softmax likelihood of C independent class latents, p(y = c | f) = exp f_c / sum_k exp f_k
+    (GPML eq. 3.34)."""
+
+    name = "softmax"
+    n_latent = None  # one latent per class
+
+    def average(self, mean, var, n_points=None):
+        """E[softmax(f)], (n, C), by quasi Monte Carlo (labelq.gp.predictive.softmax_average)."""
+        return softmax_average(mean, var, n_points)
+
+    def interval(self, mean, var, cls):
+        """5-95% interval of P(cls | x) per row, by seeded Monte Carlo."""
+        return softmax_interval(mean, var, cls)
 
 
-def get_link(name):
-    """Return the link object named `name` ("logistic" or "probit"); ValueError otherwise."""
-    if name not in LINKS:
-        raise ValueError(f"link must be one of {sorted(LINKS)}, got {name!r}")
-    return LINKS[name]
+BINARY_LINKS = {"logistic": Logistic(), "probit": Probit()}
+LIKELIHOODS = {**BINARY_LINKS, "softmax": Softmax()}
+
+
+def get_link(link):
+    """The likelihood object for a name ("logistic", "probit", "softmax") or the object itself;
+    ValueError otherwise."""
+    if isinstance(link, (Logistic, Probit, Softmax)):
+        return link
+    if link not in LIKELIHOODS:
+        raise ValueError(f"link must be one of {sorted(LIKELIHOODS)}, got {link!r}")
+    return LIKELIHOODS[link]
+
+
+def predictive_probability(mean, var, link, n_points=None):
+    """Average the likelihood ``link`` (object or name) over the Gaussian latent N(mean, var).
+
+    mean, var : (n,) for a binary link, (n, C) for softmax.
+    n_points : softmax only, quasi Monte Carlo points (default 2048, error below 1e-3; a power of
+        two; fewer, e.g. 256 with error a few 1e-3, where only the order of candidates matters).
+    Returns (n,) P(class 1) for a binary link, (n, C) class probabilities for softmax.
+    """
+    likelihood = get_link(link)
+    mean, var = check_pair(mean, var)
+    want = 2 if likelihood.n_latent is None else 1
+    if mean.ndim != want:
+        raise ValueError(f"link {likelihood.name!r} needs {'(n, C)' if want == 2 else '(n,)'} "
+                         f"mean and var, got shape {mean.shape}")
+    return likelihood.average(mean, var, n_points)
+
+
+def probability_interval(mean, var, cls, link="logistic"):
+    """5-95% interval (low, high), each (n,), of the probability of class ``cls`` (n,) int under
+    the latent predictive: mean, var (n,) for a binary link (latent of class 1), (n, C) for
+    softmax; ``link`` an object or a name."""
+    likelihood = get_link(link)
+    mean = np.asarray(mean, dtype=float)
+    if (mean.ndim == 2) != (likelihood.n_latent is None):
+        raise ValueError(f"link {likelihood.name!r} does not match latent shape {mean.shape}")
+    return likelihood.interval(mean, np.asarray(var, dtype=float), np.asarray(cls, dtype=int))

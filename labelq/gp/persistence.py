@@ -84,6 +84,28 @@ def model_from_dict(cls, d):
     return model
 
 
+def with_input_scaling(d, mean, scale):
+    """A copy of a stored model (`model_to_dict`, or a grid average's dict with "members") that
+    takes raw inputs x where the model was fitted on (x - mean) / scale.
+
+    The model's own transform (z - x_mean) / x_scale of z = (x - mean) / scale is the single
+    affine map (x - (mean + scale x_mean)) / (scale x_scale); the stored training rows become
+    z scale + mean. Predictions agree with the original's to rounding (about 1e-12).
+    """
+    mean = np.asarray(mean, dtype=float)
+    scale = np.asarray(scale, dtype=float)
+    if "members" in d:
+        return {**d, "members": [with_input_scaling(m, mean, scale) for m in d["members"]]}
+    x_mean = np.asarray(d["x_mean"], dtype=float)
+    x_scale = np.asarray(d["x_scale"], dtype=float)
+    if mean.shape != x_mean.shape or scale.shape != x_mean.shape:
+        raise ValueError(f"mean and scale must have shape {x_mean.shape}, got {mean.shape} and "
+                         f"{scale.shape}")
+    X = np.asarray(d["X"], dtype=float).reshape(len(d["y"]), -1)
+    return {**d, "X": (X * scale + mean).tolist(), "x_mean": (mean + scale * x_mean).tolist(),
+            "x_scale": (scale * x_scale).tolist()}
+
+
 def save_json(d, path):
     """Write dict d as JSON to path."""
     with open(path, "w", encoding="utf-8") as fh:

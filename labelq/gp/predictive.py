@@ -1,6 +1,7 @@
-"""Averaged class probabilities from a Gaussian latent predictive distribution.
+"""Averaged class probabilities from a Gaussian latent predictive distribution: the numerics.
 
-`predictive_probability(mean, var, link)` integrates the link against N(mean, var):
+Each likelihood object of labelq.gp.links integrates its link against N(mean, var) with one of
+these (labelq.gp.predictive_probability dispatches on the likelihood):
 
 - probit: closed form Phi(mean / sqrt(1 + var)) (GPML eq. 3.82);
 - logistic: for standard deviations s <= 1, 40-node Gauss-Hermite quadrature of
@@ -23,12 +24,19 @@ _GH_T = _GH_T * np.sqrt(2.0)
 _TRAP_G = np.arange(-36.0, 36.0 + 0.375, 0.75)
 _TRAP_W = 0.75 * expit(_TRAP_G) * expit(-_TRAP_G)
 _TRAP_W /= _TRAP_W.sum()  # the weights of a density: sum to 1 exactly, so E[sigma] stays <= 1
-_SOFTMAX_SAMPLES = 2048
+SOFTMAX_POINTS = 2048
+"""Default quasi Monte Carlo points of the softmax average (error below 1e-3)."""
 _SOFTMAX_SEED = 0
 _sobol_cache = {}
 
 
-def _check_pair(mean, var):
+def probit_average(mean, var):
+    """E[Phi(f)], f ~ N(mean, var), in closed form Phi(mean / sqrt(1 + var)) (GPML eq. 3.82)."""
+    return ndtr(mean / np.sqrt(1.0 + var))
+
+
+def check_pair(mean, var):
+    """mean and var as float arrays of one shape, finite, var >= 0; ValueError otherwise."""
     mean = np.asarray(mean, dtype=float)
     var = np.asarray(var, dtype=float)
     if mean.shape != var.shape:
@@ -40,7 +48,7 @@ def _check_pair(mean, var):
     return mean, var
 
 
-def _logistic_average(mean, var, block=20_000):
+def logistic_average(mean, var, block=20_000):
     """E[sigma(f)], f ~ N(mean, var), shape (n,); see the module docstring for the rule.
 
     Rows go in blocks so the (rows, nodes) work arrays stay small on large pools.
@@ -65,7 +73,7 @@ def _logistic_block(mean, s):
     return out
 
 
-def _sobol_normals(n_classes, n_points=_SOFTMAX_SAMPLES):
+def _sobol_normals(n_classes, n_points):
     """Fixed (n_points, n_classes) standard normal quasi-random points (scrambled Sobol, seed 0)."""
     if (n_classes, n_points) not in _sobol_cache:
         from scipy.stats import qmc  # imported here: scipy.stats adds half a second to start-up
@@ -75,14 +83,14 @@ def _sobol_normals(n_classes, n_points=_SOFTMAX_SAMPLES):
     return _sobol_cache[n_classes, n_points]
 
 
-def _softmax_average(mean, var, n_points=_SOFTMAX_SAMPLES, block=256):
+def softmax_average(mean, var, n_points=None, block=256):
     """E[softmax(f)], f_c ~ N(mean_c, var_c) independent, (n, C); QMC in row blocks.
 
     Work arrays are laid out (C, rows, points) so that the reductions over classes are
     element-wise operations on contiguous arrays.
     """
     n, n_classes = mean.shape
-    z = np.ascontiguousarray(_sobol_normals(n_classes, n_points).T)[:, None, :]
+    z = np.ascontiguousarray(_sobol_normals(n_classes, n_points or SOFTMAX_POINTS).T)[:, None, :]
     mean_t = np.ascontiguousarray(mean.T)[:, :, None]
     sd_t = np.ascontiguousarray(np.sqrt(var).T)[:, :, None]
     out = np.empty_like(mean)
@@ -94,32 +102,3 @@ def _softmax_average(mean, var, n_points=_SOFTMAX_SAMPLES, block=256):
         f /= f.sum(axis=0)
         out[sl] = f.mean(axis=2).T
     return out
-
-
-def predictive_probability(mean, var, link, n_points=None):
-    """Average the link over the Gaussian latent N(mean, var).
-
-    Parameters
-    ----------
-    mean, var : array of shape (n,) for link "probit"/"logistic", (n, C) for "softmax".
-    link : {"probit", "logistic", "softmax"}
-    n_points : softmax only, the number of quasi-Monte Carlo points (default 2048, error below
-        1e-3); a power of two. Fewer points trade accuracy for speed, e.g. 256 (error a few 1e-3)
-        where only the ordering of candidates matters.
-
-    Returns
-    -------
-    (n,) probability of the positive class (binary links) or (n, C) class probabilities.
-    """
-    mean, var = _check_pair(mean, var)
-    if link == "softmax":
-        if mean.ndim != 2:
-            raise ValueError(f"softmax needs (n, C) mean and var, got shape {mean.shape}")
-        return _softmax_average(mean, var, n_points or _SOFTMAX_SAMPLES)
-    if mean.ndim != 1:
-        raise ValueError(f"link {link!r} needs (n,) mean and var, got shape {mean.shape}")
-    if link == "probit":
-        return ndtr(mean / np.sqrt(1.0 + var))  # GPML eq. 3.82
-    if link == "logistic":
-        return _logistic_average(mean, var)
-    raise ValueError(f"link must be 'probit', 'logistic' or 'softmax', got {link!r}")

@@ -159,7 +159,7 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     queue = rank_pool(outcome.model if outcome else None, state.X, state.ids, scores, policy,
                       strategy, unlabelled, state.skipped, len(observed), classes)
     predicted = scores.predicted
-    p_low, p_high = scores.interval(policy.link)
+    p_low, p_high = scores.interval()
 
     stop_ids = stop_set(state.ids)
     kappa = None

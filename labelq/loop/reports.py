@@ -15,11 +15,13 @@ import numpy as np
 
 from labelq.errors import LabelqError
 from labelq.gp.averaging import load_model
-from labelq.gp.intervals import probability_interval
+from labelq.gp.persistence import with_input_scaling
+from labelq.gp.links import probability_interval
 from labelq.ingest import read_candidates
 from labelq.loop import settings
 from labelq.loop.refit import ensure_fit, is_current
 from labelq.review import render_chart, simulate, stopping_advice, write_png
+from labelq.review.png import write_panels_png
 
 
 class UnknownExportError(LabelqError):
@@ -162,13 +164,17 @@ REPLAY_TITLE = "Accuracy over the pool by labels given"
 
 
 def history_chart(rows) -> str:
-    """The history as a plain-text chart (at most 80 columns)."""
-    return render_chart(history_series(rows), HISTORY_TITLE, "labels", "value")
+    """The history as plain-text charts, one panel per quantity on its own scale (each at most
+    80 columns)."""
+    return "\n".join(render_chart({name: xy}, f"{name} by labels given", "labels", name,
+                                   height=8)
+                      for name, xy in history_series(rows).items())
 
 
 def history_png(rows, path: Path) -> None:
-    """The history chart as a PNG (needs the [plot] extra)."""
-    write_png(check_output(path), history_series(rows), HISTORY_TITLE, "labels", "value")
+    """The history chart as a PNG, one panel per quantity (needs the [plot] extra)."""
+    panels = [(name, xs, ys) for name, (xs, ys) in history_series(rows).items()]
+    write_panels_png(check_output(path), panels, HISTORY_TITLE, "labels")
 
 
 def _model(fit):
@@ -195,7 +201,7 @@ def candidate_view(store, key: str) -> dict:
         proba = clf.predict_proba(x)[0]
         m, v = clf.latent(x)
         for k, c in enumerate(classes):
-            lo, hi = probability_interval(m, v, np.array([k]), link=settings.POLICY.link)
+            lo, hi = probability_interval(m, v, np.array([k]), clf.likelihood_)
             view["p"][c] = {"p": float(proba[k]), "low": float(lo[0]), "high": float(hi[0])}
     labels = store.current_labels()
     if labels:
@@ -222,10 +228,10 @@ def export(store, what: str, as_json: bool = False) -> str:
         clf = _model(ensure_fit(store))
         if clf is None:
             raise NothingFittedError("no model yet: label candidates of at least two classes first")
-        doc = clf.to_dict()
-        doc["feature_names"] = store.feature_names
         mean_, scale = store.feature_scaling()
-        doc["feature_scaling"] = {"mean": mean_.tolist(), "scale": scale.tolist()}
+        # self-contained: load_model(FILE).predict_proba takes the raw feature values
+        doc = with_input_scaling(clf.to_dict(), mean_, scale)
+        doc["feature_names"] = store.feature_names
         return json.dumps(doc, indent=1) + "\n"
     raise UnknownExportError(f"cannot export {what!r}; choose labels, predictions or model")
 
@@ -268,11 +274,17 @@ def _table_text(rows, columns, as_json) -> str:
 def write_text(path: Path, text: str) -> None:
     """Write ``text`` to ``path`` atomically (a temporary file renamed into place)."""
     path = check_output(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent if str(path.parent) else ".", prefix=".labelq-")
+    try:
+        fd, tmp = tempfile.mkstemp(dir=path.parent if str(path.parent) else ".", prefix=".labelq-")
+    except OSError as exc:
+        raise OutputPathError(f"cannot write {path}: {exc.strerror or exc}") from None
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
             fh.write(text)
         os.replace(tmp, path)
+    except OSError as exc:
+        os.unlink(tmp) if os.path.exists(tmp) else None
+        raise OutputPathError(f"cannot write {path}: {exc.strerror or exc}") from None
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)

@@ -13,6 +13,10 @@ from labelq.policy.scoring import PoolScores
 from labelq.policy.settings import PolicySettings
 
 
+SPREAD = "; chosen to spread the batch"
+"""Appended to the reason of every row of a spread-out batch after the first."""
+
+
 @dataclass
 class Queue:
     """rank (N,) int: 1.. for unlabelled rows, -1 for labelled ones; reasons (N,) object: why a
@@ -74,7 +78,7 @@ def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strat
         head = _spread_head(model, X, ids, scores, strategy, rows, skipped, batch_size)
         for t, r in enumerate(head):
             why = _strategy_reason(strategy, scores.proba[r], classes)
-            reasons[r] = why if t == 0 else f"{why}; chosen to spread the batch"
+            reasons[r] = why if t == 0 else why + SPREAD
     rest = order[~np.isin(order, head)]
     final = np.concatenate([head, rest])
     rank[final] = np.arange(1, final.size + 1)
@@ -120,6 +124,6 @@ def _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size):
         return cache["cov"][:, cache["where"][int(j)]]
 
     picks = select_batch(strategy, scores.proba[rows], scores.mean[rows], scores.var[rows],
-                         scores.link, head_size, cross_cov, ids[rows], skipped_mask=skipped,
+                         scores.likelihood, head_size, cross_cov, ids[rows], skipped_mask=skipped,
                          values=scores.priority[rows])
     return rows[np.asarray(picks, dtype=np.int64)]

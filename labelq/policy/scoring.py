@@ -17,7 +17,7 @@ import numpy as np
 
 from labelq.acquire import bald_bits, entropy_bits, margin
 from labelq.acquire.epig import binary_joint, epig_bits, softmax_joint
-from labelq.gp.intervals import probability_interval
+from labelq.gp.links import probability_interval
 from labelq.policy.settings import PolicySettings
 
 
@@ -32,7 +32,7 @@ class PoolScores:
     entropy: np.ndarray  # (N,) bits
     margin: np.ndarray  # (N,)
     bald: Optional[np.ndarray]  # (N,) bits, or None when not computed
-    link: str  # "logistic", "probit" or "softmax": how the latent maps to probabilities
+    likelihood: object  # the model's likelihood (labelq.gp.links), None before any model
 
     @property
     def predicted(self) -> np.ndarray:
@@ -44,11 +44,11 @@ class PoolScores:
         """(N,) probability of the predicted class."""
         return self.proba[np.arange(len(self.proba)), self.predicted]
 
-    def interval(self, binary_link: str):
-        """(low, high): 5-95% interval of the predicted class's probability (labelq.gp.intervals)."""
+    def interval(self):
+        """(low, high): 5-95% interval of the predicted class's probability (labelq.gp.links)."""
         if self.mean is None:
             return self.p_top, self.p_top
-        return probability_interval(self.mean, self.var, self.predicted, link=binary_link)
+        return probability_interval(self.mean, self.var, self.predicted, self.likelihood)
 
 
 def members(model):
@@ -62,7 +62,7 @@ def uniform_scores(n: int, n_classes: int) -> PoolScores:
     """Scores before any model: uniform probabilities, no latent, no priority."""
     proba = np.full((n, n_classes), 1.0 / n_classes)
     zeros = np.zeros(n)
-    return PoolScores(proba, None, None, zeros, entropy_bits(proba), zeros, zeros, "softmax")
+    return PoolScores(proba, None, None, zeros, entropy_bits(proba), zeros, zeros, None)
 
 
 def score_pool(model, X, settings: PolicySettings, strategy: str, unlabelled: np.ndarray,
@@ -78,9 +78,10 @@ def score_pool(model, X, settings: PolicySettings, strategy: str, unlabelled: np
     proba = sum(wk * p.proba for wk, p in zip(w, parts))
     mean = sum(wk * p.mean for wk, p in zip(w, parts))
     var = np.maximum(sum(wk * (p.var + p.mean ** 2) for wk, p in zip(w, parts)) - mean ** 2, 0.0)
-    link = settings.link if proba.shape[1] == 2 else "softmax"
+    link = model.likelihood_
+    multi = link.n_latent is None  # softmax: one latent per class
     entropy = entropy_bits(proba)
-    marg = margin(proba, mean, var) if link != "softmax" else margin(proba)
+    marg = margin(proba) if multi else margin(proba, mean, var)
     need_bald = full or strategy in ("bald", "epig")
     major = w >= min(settings.detail_weight, w.max())  # members that carry BALD and EPIG
     w_major = w[major] / w[major].sum()
@@ -133,7 +134,7 @@ def _epig_priority(ms, w, X, bald, unlabelled, settings, link):
         mc, vc = m.latent(Xs)
         mt, vt = m.latent(Xt)
         cov = m.latent_cross_cov(Xs, Xt)
-        if link == "softmax":
+        if link.n_latent is None:  # softmax: joint draws with the control variate
             args = (mc, vc, mt, vt, cov)
             joints.append(softmax_joint(*args, n_samples=settings.epig_samples,
                                         seed=settings.seed))

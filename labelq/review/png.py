@@ -9,6 +9,17 @@ class PlotUnavailableError(LabelqError):
     """matplotlib, needed for PNG charts, is not installed."""
 
 
+class PlotWriteError(LabelqError):
+    """The PNG file cannot be written where the user asked."""
+
+
+def _save(fig, path) -> None:
+    try:
+        fig.savefig(path, format="png")
+    except OSError as exc:
+        raise PlotWriteError(f"cannot write {path}: {exc.strerror or exc}") from None
+
+
 def write_png(
     path,
     series: Mapping[str, Tuple[Sequence[float], Sequence[float]]],
@@ -41,4 +52,28 @@ def write_png(
     if series:
         ax.legend(loc="best", frameon=False)
     fig.tight_layout()
-    fig.savefig(path, format="png")
+    _save(fig, path)
+
+
+def write_panels_png(path, panels, title: str, x_label: str) -> None:
+    """Write one panel per (name, xs, ys) in ``panels``, stacked with a shared x axis and each on
+    its own y scale (quantities of different scales never share an axis)."""
+    try:
+        import matplotlib  # noqa: F401
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+    except ImportError:
+        raise PlotUnavailableError(
+            "plotting needs matplotlib: pip install 'labelq[plot]'"
+        ) from None
+    fig = Figure(figsize=(7.0, 2.2 * max(len(panels), 1) + 0.8), dpi=100)
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(max(len(panels), 1), 1, sharex=True, squeeze=False)[:, 0]
+    for ax, (name, xs, ys) in zip(axes, panels):
+        ax.plot(list(xs), list(ys), marker="o", markersize=2.5, linewidth=1.2)
+        ax.set_ylabel(name)
+        ax.grid(True, alpha=0.3)
+    axes[0].set_title(title)
+    axes[-1].set_xlabel(x_label)
+    fig.tight_layout()
+    _save(fig, path)

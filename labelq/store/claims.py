@@ -54,3 +54,14 @@ class ClaimsMixin(StoreCore):
                 ),
                 {"holder": holder, "ids": [int(i) for i in candidate_ids]},
             ).rowcount
+
+    def held_by_others(self, holder: Optional[str]) -> tuple[int, Optional[str]]:
+        """(how many unexpired claims belong to someone other than ``holder``, the latest expiry
+        among them as UTC text, or None)."""
+        with self._read() as connection:
+            count, until = connection.execute(
+                text("SELECT COUNT(*), MAX(expires_at) FROM claims WHERE expires_at > :now"
+                     " AND (:holder IS NULL OR holder <> :holder)"),
+                {"now": utc_now(), "holder": holder},
+            ).one()
+        return int(count), until

@@ -11,7 +11,7 @@ import pytest
 from scipy.special import expit, ndtr, softmax
 from scipy.stats import norm
 
-from labelq.gp.intervals import probability_interval
+from labelq.gp.links import probability_interval
 
 
 @pytest.mark.parametrize("link,g", [("logistic", expit), ("probit", ndtr)])
@@ -38,7 +38,7 @@ def test_multiclass_interval_against_a_large_sample():
     mean = np.array([[1.0, 0.0, -1.0], [0.2, 0.1, 0.0]])
     var = np.array([[0.5, 1.0, 2.0], [3.0, 0.2, 1.0]])
     cls = np.array([0, 2])
-    low, high = probability_interval(mean, var, cls, link="logistic")
+    low, high = probability_interval(mean, var, cls, link="softmax")
     rng = np.random.default_rng(7)
     for i in range(2):
         f = mean[i] + np.sqrt(var[i]) * rng.standard_normal((200_000, 3))

@@ -69,3 +69,32 @@ def test_unknown_link_is_value_error():
     # Source: labelq contract (invalid input raises ValueError naming the value).
     with pytest.raises(ValueError, match="cauchit"):
         get_link("cauchit")
+
+
+def test_fitted_models_hold_their_likelihood_object():
+    """One likelihood object per family, held by the fitted model (GPflow's design; common
+    practice): softmax for three classes, the binary link otherwise."""
+    from labelq.gp import GPClassifier, predictive_probability
+    from labelq.gp.links import Softmax
+
+    rng = np.random.default_rng(0)
+    X = rng.normal(size=(12, 2))
+    three = GPClassifier(optimize=False).fit(X, np.arange(12) % 3)
+    two = GPClassifier(optimize=False, link="probit").fit(X, np.arange(12) % 2)
+    assert isinstance(three.likelihood_, Softmax) and isinstance(two.likelihood_, Probit)
+    mean, var = two.latent(X)
+    # the object and its name give the same averaged probability (GPML eq. 3.82 for the probit)
+    np.testing.assert_allclose(predictive_probability(mean, var, two.likelihood_),
+                               predictive_probability(mean, var, "probit"))
+    with pytest.raises(ValueError, match="link"):
+        GPClassifier(link="softmax").fit(X, np.arange(12) % 2)
+
+
+def test_logistic_probit_scale():
+    """sigma(f) ~ Phi(sqrt(pi/8) f) to within 0.018 everywhere (MacKay 1992; the bound is the
+    known maximum error of this approximation, value from memory, checked here on a grid)."""
+    from scipy.special import expit, ndtr
+
+    f = np.linspace(-10, 10, 2001)
+    assert np.abs(expit(f) - ndtr(get_link("logistic").probit_scale * f)).max() < 0.018
+    assert get_link("probit").probit_scale == 1.0
