@@ -2,14 +2,26 @@
 
 The file has a header. One column holds the candidate's id (its key), an optional column holds
 known labels, the feature columns hold finite numbers and every other column is kept as text
-metadata. Anything wrong with the file raises :class:`InputError` with a one-line message that
-names the file, the line (where the record starts) and the column and value involved.
+metadata. Which columns are features follows a rule the caller sees and sets, never whether every
+cell happened to parse:
+
+- ``features`` given: exactly those columns (rule ``"features"``);
+- ``meta`` given: every column except those, the id and the labels (rule ``"meta"``);
+- neither: a column is a feature when its first filled (non-blank) cell is a number as ``float``
+  reads it, and metadata otherwise (rule ``"first-filled-cell"``).
+
+An empty (blank) cell in a feature column is an error unless ``missing`` names a treatment:
+``"drop-row"`` leaves the row out, ``"median"`` fills the cell with the median of the column's
+filled cells in the file. A filled cell that is not a finite number is an error whatever
+``missing`` says. Anything wrong with the file raises :class:`InputError` with a one-line message
+that names the file, the line (where the record starts) and the column and value involved.
 
 Large files are read in chunks of ``chunk_rows`` records: each chunk's cells are placed in one
-NumPy object array and each numeric column is converted by NumPy with ``float`` semantics
+NumPy object array and each feature column is converted by NumPy with ``float`` semantics
 (surrounding whitespace is allowed, and so are the forms ``float`` itself accepts such as "1_000"
 or non-ASCII digits); only when a conversion fails is the column walked cell by cell to find the
-first bad value for the message.
+blank cells and the first bad value. A column's role, once decided, never changes, so the file is
+read once.
 """
 
 from __future__ import annotations
@@ -19,26 +31,32 @@ import itertools
 import json
 import math
 import os
-from dataclasses import dataclass
+import re
+from dataclasses import dataclass, field
 from typing import Callable, Iterator, Optional, Sequence
 
 import numpy as np
 
 from labelq.errors import LabelqError
 
-__all__ = ["CandidateTable", "InputError", "read_candidates"]
+__all__ = [
+    "MISSING_TREATMENTS",
+    "CandidateTable",
+    "InputError",
+    "MissingCells",
+    "read_candidates",
+]
 
 FIELD_SIZE_LIMIT = 16 * 1024 * 1024
 """Largest single field accepted, in characters (the csv module's default is 128 KiB)."""
 
-_SHOWN_CHARS = 40
-_LINE_BREAKS = str.maketrans({"\x85": "\\u0085", "\u2028": "\\u2028", "\u2029": "\\u2029"})
+MISSING_TREATMENTS = ("error", "drop-row", "median")
+"""What may be done with an empty cell in a feature column (see :func:`read_candidates`)."""
 
-_CELL_PROBLEMS = {
-    "empty id": "empty id",
-    "not a number": "{cell} is not a number",
-    "not finite": "{cell} is not a finite number",
-}
+_SHOWN_CHARS = 40
+_SHOWN_EXPLANATIONS = 3
+_LINE_BREAKS = str.maketrans({"\x85": "\\u0085", "\u2028": "\\u2028", "\u2029": "\\u2029"})
+_BARE_NAME = re.compile(r"[A-Za-z0-9_.-]+")
 
 Progress = Callable[[int, int, int], None]
 
@@ -48,12 +66,36 @@ class InputError(LabelqError):
 
 
 @dataclass
+class MissingCells:
+    """The empty cells found in feature columns and what was done with them.
+
+    ``treatment`` is one of :data:`MISSING_TREATMENTS`; ``per_column`` counts the empty cells of
+    each feature column that has any; ``dropped_rows`` is how many rows "drop-row" left out and
+    ``first_dropped_line`` the file line of the first of them; ``filled_with`` maps each column
+    "median" filled to the value put in its empty cells.
+    """
+
+    treatment: str = "error"
+    per_column: dict[str, int] = field(default_factory=dict)
+    dropped_rows: int = 0
+    first_dropped_line: Optional[int] = None
+    filled_with: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def filled_cells(self) -> dict[str, int]:
+        """Cells filled per column (empty unless the treatment is "median")."""
+        return dict(self.per_column) if self.treatment == "median" else {}
+
+
+@dataclass
 class CandidateTable:
-    """The candidates of one file, in file order.
+    """The candidates of one file, in file order (less any rows "drop-row" left out).
 
     ``X`` has shape ``(n_rows, n_features)`` with columns in ``feature_names`` order; ``meta[i]``
     maps each of ``meta_columns`` to row i's text (empty cells kept as ""); ``labels`` is None
     when no labels column was named, else one entry per row (None for an empty cell).
+    ``feature_rule`` says how the features were chosen ("features", "meta" or
+    "first-filled-cell") and ``missing`` what was done with empty feature cells.
     """
 
     keys: list[str]
@@ -63,6 +105,8 @@ class CandidateTable:
     meta_columns: list[str]
     labels: Optional[list[Optional[str]]]
     n_rows: int
+    feature_rule: str = "first-filled-cell"
+    missing: MissingCells = field(default_factory=MissingCells)
 
 
 @dataclass
@@ -87,6 +131,11 @@ def _list_columns(names: Sequence[str]) -> str:
     return shown + (f" and {len(names) - 8} more" if len(names) > 8 else "")
 
 
+def _option_value(name: str) -> str:
+    """A column name as it would be typed after an option: bare when that is safe, else quoted."""
+    return name if _BARE_NAME.fullmatch(name) else _show(name)
+
+
 def read_candidates(
     path: str | os.PathLike,
     id_column: str,
@@ -95,36 +144,42 @@ def read_candidates(
     expected_features: Optional[Sequence[str]] = None,
     progress: Optional[Progress] = None,
     chunk_rows: int = 50_000,
+    *,
+    meta: Optional[Sequence[str]] = None,
+    missing: str = "error",
 ) -> CandidateTable:
     """Read the candidates in the CSV file at ``path``.
 
-    ``features`` names the feature columns; when None they are inferred as every column other
-    than the id and labels columns whose cells are all non-empty numbers. ``expected_features``
-    (the store's schema) must then match the chosen columns as a set and fixes their order.
+    ``features`` names exactly the feature columns, in the order given; ``meta`` instead names
+    the metadata columns, every other column except the id and labels being a feature; with
+    neither, a column is a feature when its first filled cell is a number (see the module
+    docstring). ``missing`` ("error", "drop-row" or "median") says what to do with an empty cell
+    in a feature column. ``expected_features`` (the store's schema) must then match the chosen
+    columns as a set and fixes their order; otherwise features keep the file's order.
     ``progress(rows_done, bytes_done, total_bytes)`` is called once per chunk. Ids are stripped
     of surrounding whitespace, as are labels; metadata is kept verbatim.
     """
     if chunk_rows < 1:
         raise ValueError(f"chunk_rows must be at least 1, got {chunk_rows}")
+    if missing not in MISSING_TREATMENTS:
+        raise ValueError(f"missing must be one of {', '.join(MISSING_TREATMENTS)}, got {missing!r}")
     name = os.fspath(path)
     csv.field_size_limit(max(csv.field_size_limit(), FIELD_SIZE_LIMIT))
     try:
         with _open(name) as raw:
             total_bytes = os.fstat(raw.fileno()).st_size
             chunks = _read_chunks(raw, name, chunk_rows)
-            plan = _Plan(name, next(chunks), id_column, features, labels_column)
+            plan = _Plan(name, next(chunks), id_column, labels_column, features, meta, missing,
+                         expected_features)
             for chunk in chunks:
                 plan.add(chunk)
                 if progress is not None:
                     progress(plan.n_rows, chunk.bytes_done, total_bytes)
         if plan.n_rows == 0:
             raise InputError(f"{name}: no rows (the file has only a header)")
-        if plan.needs_recovery():
-            with _open(name) as raw:
-                plan.recover(_read_chunks(raw, name, chunk_rows))
     except OSError as exc:
         raise InputError(f"{name}: cannot be read ({exc.strerror or exc})") from None
-    return plan.finish(expected_features)
+    return plan.finish()
 
 
 def _open(name: str):
@@ -206,10 +261,25 @@ def _as_cells(rows: list[list[str]], width: int) -> np.ndarray:
     return cells
 
 
-class _Plan:
-    """The column roles of one file and the values gathered for them so far."""
+def _is_number(cell: str) -> bool:
+    """Whether ``float`` reads the cell (the test the first-filled-cell rule applies)."""
+    try:
+        float(cell)
+    except ValueError:
+        return False
+    return True
 
-    def __init__(self, name, header, id_column, features, labels_column):
+
+class _Plan:
+    """The column roles of one file and the values gathered for them so far.
+
+    Every column other than the id and labels is a feature (its values in ``floats``, NaN for an
+    empty cell), metadata (its text in ``texts``) or, under the first-filled-cell rule, pending:
+    every cell so far is blank, its text is kept in ``texts`` until a filled cell decides.
+    """
+
+    def __init__(self, name, header, id_column, labels_column, features, meta, missing,
+                 expected_features):
         self.name = name
         self.header_line, fields = header
         self.columns = [column.strip() for column in fields]
@@ -218,16 +288,23 @@ class _Plan:
         self.labels_index = None if labels_column is None else self._find(labels_column, "labels")
         if self.labels_index == self.id_index:
             raise InputError(f"{name}: the labels column cannot also be the id column")
-        self.explicit = features is not None
-        self.numeric = self._numeric_candidates(features)
         self.n_rows = 0
+        self.first_line = 0
         self.keys: list[str] = []
         self.key_lines: dict[str, int] = {}
         self.labels: list[Optional[str]] = []
-        self.floats: dict[int, list[np.ndarray]] = {j: [] for j in self.numeric}
-        self.texts: dict[int, list[str]] = {j: [] for j in self._others() if j not in self.numeric}
-        self.lost_rows: dict[int, int] = {}
-        self.non_finite: dict[int, tuple[int, str]] = {}
+        self.rule = "first-filled-cell"
+        self.features: list[int] = []
+        self.pending: list[int] = []
+        self.floats: dict[int, list[np.ndarray]] = {}
+        self.texts: dict[int, list[str]] = {}
+        self.first_filled: dict[int, tuple[int, str]] = {}
+        self.first_blank: dict[int, int] = {}
+        self.missing = missing
+        self.expected = None
+        if expected_features is not None:
+            self.expected = [column.strip() for column in expected_features]
+        self._choose(features, meta)
 
     def _check_header(self):
         seen: dict[str, int] = {}
@@ -255,53 +332,76 @@ class _Plan:
     def _others(self) -> list[int]:
         return [j for j in range(len(self.columns)) if j not in (self.id_index, self.labels_index)]
 
-    def _numeric_candidates(self, features) -> list[int]:
-        if features is None:
-            return self._others()
-        if isinstance(features, str):
-            raise TypeError("features must be a sequence of column names, not a str")
+    def _choose(self, features, meta):
+        """Fix the rule that splits the columns: ``self.rule``, the feature, metadata and
+        pending columns."""
+        if features is not None and meta is not None:
+            raise InputError(
+                f"{self.name}: name either the feature columns (--features) or the metadata "
+                "columns (--meta), not both"
+            )
+        if features is not None:
+            self.rule = "features"
+            self.features = self._named(features, "feature")
+            if not self.features:
+                raise InputError(f"{self.name}: no features requested")
+            metadata = [j for j in self._others() if j not in self.features]
+        elif meta is not None:
+            self.rule = "meta"
+            metadata = self._named(meta, "metadata")
+            self.features = [j for j in self._others() if j not in metadata]
+        else:
+            self.pending = self._others()
+            metadata = self.pending
+        self.floats = {j: [] for j in self.features}
+        self.texts = {j: [] for j in metadata}
+
+    def _named(self, names, role: str) -> list[int]:
+        """Column indices of ``names`` (a --features or --meta list), in the order given."""
+        if isinstance(names, str):
+            raise TypeError(f"{role} columns must be a sequence of column names, not a str")
+        noun = "a feature" if role == "feature" else "metadata"
         indices: list[int] = []
-        for feature in features:
-            index = self._find(feature, "feature")
+        for column in names:
+            index = self._find(column, role)
             if index == self.id_index or index == self.labels_index:
-                role = "id" if index == self.id_index else "labels"
-                raise InputError(
-                    f"{self.name}: {_show(feature)} is the {role} column, not a feature"
-                )
+                which = "id" if index == self.id_index else "labels"
+                raise InputError(f"{self.name}: {_show(column)} is the {which} column, not {noun}")
             if index in indices:
-                raise InputError(f"{self.name}: feature {_show(feature)} is requested twice")
+                what = "feature" if role == "feature" else "metadata column"
+                raise InputError(f"{self.name}: {what} {_show(column)} is requested twice")
             indices.append(index)
-        if not indices:
-            raise InputError(f"{self.name}: no features requested")
         return indices
 
     def add(self, chunk: _Chunk):
         """Check and keep one chunk's ids, labels, numbers and text."""
+        if self.n_rows == 0:
+            self.first_line = chunk.lines[0]
+        if self.pending:
+            self._decide(chunk)
         self._add_keys(chunk)
         if self.labels_index is not None:
             self.labels.extend(cell.strip() or None for cell in chunk.cells[:, self.labels_index])
-        bad: list[tuple[int, int, str, str]] = []
-        for j in list(self.numeric):
-            values, problem = _to_floats(chunk.cells[:, j])
-            if self.explicit:
-                if problem is None:
-                    self.floats[j].append(values)
-                else:
-                    row, cell, reason = problem
-                    bad.append((row, self.numeric.index(j), cell, reason))
-            elif values is None:
-                self._demote(j)
-            else:
-                self.floats[j].append(values)
-                if problem is not None:
-                    row, cell, _ = problem
-                    self.non_finite.setdefault(j, (chunk.lines[row], cell))
-        if bad:
-            row, position, cell, reason = min(bad)
-            self._raise_cell(chunk.lines[row], self.numeric[position], cell, reason)
+        self._add_numbers(chunk)
         for j, texts in self.texts.items():
             texts.extend(chunk.cells[:, j].tolist())
         self.n_rows += len(chunk.lines)
+
+    def _decide(self, chunk: _Chunk):
+        """Give each pending column whose first filled cell is in this chunk its role."""
+        for j in list(self.pending):
+            row = next((r for r, cell in enumerate(chunk.cells[:, j]) if cell.strip()), None)
+            if row is None:
+                continue
+            cell = chunk.cells[row, j]
+            self.first_filled[j] = (chunk.lines[row], cell)
+            self.pending.remove(j)
+            if _is_number(cell):
+                del self.texts[j]
+                self.features.append(j)
+                self.floats[j] = [np.full(self.n_rows, np.nan)]
+                if self.n_rows:
+                    self.first_blank[j] = self.first_line
 
     def _add_keys(self, chunk: _Chunk):
         for line, cell in zip(chunk.lines, chunk.cells[:, self.id_index]):
@@ -316,113 +416,229 @@ class _Plan:
                 )
             self.keys.append(key)
 
-    def _demote(self, j: int):
-        """Column j holds a non-number: it becomes metadata; earlier rows' text must be re-read."""
-        self.numeric.remove(j)
-        del self.floats[j]
-        self.non_finite.pop(j, None)
-        self.texts[j] = []
-        self.lost_rows[j] = self.n_rows
+    def _add_numbers(self, chunk: _Chunk):
+        """Convert the chunk's feature cells; raise for the earliest cell that breaks a rule."""
+        bad: list[tuple[int, int, str, str]] = []
+        for j in self.features:
+            values, blank, problem = _to_floats(chunk.cells[:, j])
+            if blank is not None:
+                self.first_blank.setdefault(j, chunk.lines[blank])
+            if problem is None:
+                self.floats[j].append(values)
+            else:
+                row, cell, reason = problem
+                bad.append((chunk.lines[row], j, cell, reason))
+        if self.missing == "error":
+            bad.extend((line, j, "", "empty cell") for j, line in self.first_blank.items())
+        if bad:
+            self._raise_cell(*min(bad))
 
     def _raise_cell(self, line: int, j: int, cell: str, reason: str):
-        """Raise the InputError for one bad cell; ``reason`` is a key of ``_CELL_PROBLEMS``."""
-        if reason == "empty id" or cell.strip():
-            problem = _CELL_PROBLEMS[reason].format(cell=_show(cell))
+        """Raise the InputError for one bad cell: an "empty id", or a feature cell that is an
+        "empty cell", "not a number" or "not finite"."""
+        if reason == "empty id":
+            problem = "empty id"
+        elif reason == "empty cell":
+            problem = (
+                "empty cell in a feature column (use --missing drop-row or --missing median, "
+                f"or {self._as_text(j)})"
+            )
         else:
-            problem = "empty cell where a number is required"
+            kind = "a number" if reason == "not a number" else "a finite number"
+            why = ""
+            if j in self.first_filled and reason == "not a number":
+                why = f"its first filled cell, line {self.first_filled[j][0]}, is a number; "
+            problem = (
+                f"{_show(cell)} is not {kind} in a feature column "
+                f"({why}{self._as_text(j, verb=True)} to keep the column as text)"
+            )
         raise InputError(f"{self.name}, line {line}, column {_show(self.columns[j])}: {problem}")
 
-    def needs_recovery(self) -> bool:
-        return any(rows > 0 for rows in self.lost_rows.values())
+    def _as_text(self, j: int, verb: bool = False) -> str:
+        """How the user makes feature column j metadata, under the rule in force."""
+        column = _option_value(self.columns[j])
+        if self.rule == "features":
+            return f"leave {column} out of --features"
+        if self.rule == "meta":
+            return f"add {column} to --meta"
+        return f"use --meta {column}" if verb else f"--meta {column}"
 
-    def recover(self, chunks: Iterator):
-        """Re-read the text of rows whose column was taken for numeric until a later row."""
-        next(chunks)
-        wanted = {j: rows for j, rows in self.lost_rows.items() if rows > 0}
-        early: dict[int, list[str]] = {j: [] for j in wanted}
-        done = 0
-        for chunk in chunks:
-            for j, rows in wanted.items():
-                if done < rows:
-                    early[j].extend(chunk.cells[: rows - done, j].tolist())
-            done += len(chunk.lines)
-            if done >= max(wanted.values()):
-                break
-        for j, texts in early.items():
-            self.texts[j][:0] = texts
+    def _check_expected(self):
+        """Refuse a file whose feature columns differ from the store's, saying which and why."""
+        if self.expected is None:
+            return
+        chosen = {self.columns[j] for j in self.features}
+        reasons = []
+        absent = [column for column in self.expected if column not in self.columns]
+        if absent:
+            what = "feature" if len(absent) == 1 else "features"
+            verb = "is" if len(absent) == 1 else "are"
+            reasons.append(f"the store's {what} {_list_columns(absent)} {verb} not in the file")
+        extra = [self.columns[j] for j in sorted(self.features)
+                 if self.columns[j] not in self.expected]
+        if extra:
+            what = "is a feature" if len(extra) == 1 else "are features"
+            reasons.append(f"{_list_columns(extra)} {what} in the file but not in the store")
+        unused = [column for column in self.expected
+                  if column in self.columns and column not in chosen]
+        reasons += [self._not_a_feature(self.columns.index(column))
+                    for column in unused[:_SHOWN_EXPLANATIONS]]
+        if len(unused) > _SHOWN_EXPLANATIONS:
+            reasons.append(f"and {len(unused) - _SHOWN_EXPLANATIONS} more columns that are "
+                           "not features here")
+        if reasons:
+            raise InputError(
+                f"{self.name}: the feature columns differ from the store's: {'; '.join(reasons)}"
+            )
 
-    def finish(self, expected_features) -> CandidateTable:
-        """Apply the feature rules that need the whole file and assemble the table."""
-        order = self._feature_order(expected_features)
-        for j in order:
-            if j in self.non_finite:
-                line, cell = self.non_finite[j]
-                self._raise_cell(line, j, cell, "not finite")
+    def _not_a_feature(self, j: int) -> str:
+        """Why column j of the file, a feature of the store, is not a feature here."""
+        column = f"column {_show(self.columns[j])}"
+        if j == self.id_index:
+            return f"{column} is the id column"
+        if j == self.labels_index:
+            return f"{column} is the labels column"
+        if self.rule == "features":
+            return f"{column} is in the file but not named by --features"
+        if self.rule == "meta":
+            return f"{column} is in the file but named by --meta"
+        if j not in self.first_filled:
+            return f"{column} is in the file but has no filled cell"
+        line, cell = self.first_filled[j]
+        return (f"{column} is in the file but its first filled cell, line {line}, is "
+                f"{_show(cell)}, not a number")
+
+    def finish(self) -> CandidateTable:
+        """Settle the columns still pending (all blank: metadata), compare the features with
+        the store's (only now, so that the file's own faults are reported first), apply the
+        treatment of empty cells and assemble the table."""
+        self.pending = []
+        self._check_expected()
+        order = self._feature_order()
         X = np.empty((self.n_rows, len(order)), dtype=np.float64)
         for position, j in enumerate(order):
-            X[:, position] = np.concatenate(self.floats[j]) if self.floats[j] else []
+            X[:, position] = np.concatenate(self.floats.pop(j))
+        names = [self.columns[j] for j in order]
+        missing = MissingCells(self.missing)
+        counts = np.count_nonzero(np.isnan(X), axis=0)
+        missing.per_column = {name: int(n) for name, n in zip(names, counts) if n}
+        keep = None
+        if self.missing == "median":
+            missing.filled_with = self._fill_medians(X, names, counts)
+        elif self.missing == "drop-row" and missing.per_column:
+            keep = ~np.isnan(X).any(axis=1)
+            if not keep.any():
+                raise InputError(
+                    f"{self.name}: every row has an empty feature cell, so --missing drop-row "
+                    "leaves nothing to import"
+                )
+            X = X[keep]
+            missing.dropped_rows = self.n_rows - len(X)
+            missing.first_dropped_line = min(self.first_blank.values())
         meta_indices = sorted(self.texts)
         meta_columns = [self.columns[j] for j in meta_indices]
         if meta_indices:
             rows = zip(*(self.texts[j] for j in meta_indices))
-            meta = [dict(zip(meta_columns, row)) for row in rows]
+            meta = [dict(zip(meta_columns, row)) for row in _kept(rows, keep)]
         else:
-            meta = [{} for _ in range(self.n_rows)]
+            meta = [{} for _ in range(len(X))]
         return CandidateTable(
-            keys=self.keys,
+            keys=list(_kept(self.keys, keep)),
             X=X,
-            feature_names=[self.columns[j] for j in order],
+            feature_names=names,
             meta=meta,
             meta_columns=meta_columns,
-            labels=self.labels if self.labels_index is not None else None,
-            n_rows=self.n_rows,
+            labels=list(_kept(self.labels, keep)) if self.labels_index is not None else None,
+            n_rows=len(X),
+            feature_rule=self.rule,
+            missing=missing,
         )
 
-    def _feature_order(self, expected_features) -> list[int]:
-        if not self.numeric:
-            raise InputError(
-                f"{self.name}: no feature columns (every column other than the id and labels "
-                "has text or empty cells)"
-            )
-        if expected_features is None:
-            return list(self.numeric)
-        chosen = {self.columns[j]: j for j in self.numeric}
-        expected = [column.strip() for column in expected_features]
-        missing = [column for column in expected if column not in chosen]
-        extra = [column for column in chosen if column not in expected]
-        if missing or extra:
-            parts = []
-            if missing:
-                parts.append(f"missing {_list_columns(missing)}")
-            if extra:
-                parts.append(f"extra {_list_columns(extra)}")
-            raise InputError(
-                f"{self.name}: the feature columns differ from the store's ({'; '.join(parts)})"
-            )
-        return [chosen[column] for column in expected]
+    def _fill_medians(self, X: np.ndarray, names: list[str], counts: np.ndarray) -> dict:
+        """Fill the empty (NaN) cells of each column of X with the median of its filled cells."""
+        filled: dict[str, float] = {}
+        for position in np.flatnonzero(counts):
+            column = X[:, position]
+            blank = np.isnan(column)
+            if blank.all():
+                raise InputError(
+                    f"{self.name}, column {_show(names[position])}: every cell is empty, so "
+                    "--missing median has no median to fill with"
+                )
+            value = _median(column[~blank])
+            column[blank] = value
+            filled[names[position]] = value
+        return filled
+
+    def _feature_order(self) -> list[int]:
+        if not self.features:
+            if self.rule == "meta":
+                why = "--meta names every column other than the id and labels"
+            else:
+                why = ("no column other than the id and labels has a number as its first filled "
+                       "cell; name them with --features")
+            raise InputError(f"{self.name}: no feature columns ({why})")
+        if self.expected is not None:
+            return [self.columns.index(column) for column in self.expected]
+        return list(self.features) if self.rule == "features" else sorted(self.features)
 
 
-def _to_floats(cells: np.ndarray) -> tuple[Optional[np.ndarray], Optional[tuple[int, str, str]]]:
-    """Convert an object column of str to float64.
+def _kept(items, keep: Optional[np.ndarray]) -> Iterator:
+    """The items whose entry in ``keep`` is True; all of them when ``keep`` is None."""
+    return iter(items) if keep is None else itertools.compress(items, keep)
 
-    Returns ``(values, problem)``: ``values`` is None when some cell is not a number; ``problem``
-    is None or ``(row, cell, reason)`` for the first cell that is "not a number" or "not finite".
+
+def _median(values: np.ndarray) -> float:
+    """The median of ``values`` (m,), m >= 1: the middle value, or the mean of the two middle
+    values, halved before adding when their sum would overflow."""
+    half = len(values) // 2
+    if len(values) % 2:
+        return float(np.partition(values, half)[half])
+    low, high = (float(v) for v in np.partition(values, [half - 1, half])[[half - 1, half]])
+    middle = (low + high) / 2
+    return middle if math.isfinite(middle) else low / 2 + high / 2
+
+
+def _to_floats(cells: np.ndarray):
+    """Convert an object column of str to float64, blank cells to NaN.
+
+    Returns ``(values, blank, problem)``: ``values`` (m,), or None when some filled cell is bad;
+    ``blank`` the row of the first blank cell, or None; ``problem`` None or ``(row, cell,
+    reason)`` for the first filled cell that is "not a number" or "not finite".
     """
+    blank = None
     try:
         values = cells.astype(np.float64)
     except ValueError:
-        values = None
-    if values is not None:
-        finite = np.isfinite(values)
-        if finite.all():
-            return values, None
-        row = int(np.argmin(finite))
-        return values, (row, cells[row], "not finite")
+        blank = np.fromiter((not cell.strip() for cell in cells), dtype=bool, count=len(cells))
+        values = np.full(len(cells), np.nan)
+        try:
+            values[~blank] = cells[~blank].astype(np.float64)
+        except ValueError:
+            return None, _first(blank), _first_bad(cells, blank)
+    bad = ~np.isfinite(values) if blank is None else ~(np.isfinite(values) | blank)
+    if bad.any():
+        row = int(np.argmax(bad))
+        return None, _first(blank), (row, cells[row], "not finite")
+    return values, _first(blank), None
+
+
+def _first(mask: Optional[np.ndarray]) -> Optional[int]:
+    """The first True row of ``mask``, or None."""
+    if mask is None or not mask.any():
+        return None
+    return int(np.argmax(mask))
+
+
+def _first_bad(cells: np.ndarray, blank: np.ndarray) -> tuple[int, str, str]:
+    """``(row, cell, reason)``: the first filled cell that ``float`` rejects or finds infinite."""
     for row, cell in enumerate(cells):
+        if blank[row]:
+            continue
         try:
             number = float(cell)
         except ValueError:
-            return None, (row, cell, "not a number")
+            return row, cell, "not a number"
         if not math.isfinite(number):
-            return None, (row, cell, "not finite")
+            return row, cell, "not finite"
     raise AssertionError("NumPy rejected a column that float() accepts")

@@ -3,24 +3,24 @@
 Pure NumPy; imports nothing of labelq but :mod:`labelq.gp`. Entropies and BALD are in bits.
 """
 
-from labelq.acquire.bald import bald_bits
-from labelq.acquire.batch import select_batch
-from labelq.acquire.coldstart import TypicalPicks, cold_start, typical_start
-from labelq.acquire.entropy import entropy_bits
-from labelq.acquire.margin import margin
-from labelq.acquire.ranking import rank_order
-from labelq.acquire.scores import STRATEGIES, display_score, priority
+from labelq.acquire.margin import margin  # eager: the name is also a submodule's
+from labelq.lazy import lazy_exports
 
-__all__ = [
-    "STRATEGIES",
-    "TypicalPicks",
-    "bald_bits",
-    "cold_start",
-    "display_score",
-    "entropy_bits",
-    "margin",
-    "priority",
-    "rank_order",
-    "select_batch",
-    "typical_start",
-]
+_WHERE = {
+    "STRATEGIES": "labelq.acquire.names",
+    "TypicalPicks": "labelq.acquire.coldstart",
+    "bald_bits": "labelq.acquire.bald",
+    "cold_start": "labelq.acquire.coldstart",
+    "display_score": "labelq.acquire.scores",
+    "entropy_bits": "labelq.acquire.entropy",
+    "priority": "labelq.acquire.scores",
+    "rank_order": "labelq.acquire.ranking",
+    "select_batch": "labelq.acquire.batch",
+    "typical_start": "labelq.acquire.coldstart",
+}
+"""Where each public name lives; imported on first use (labelq.lazy)."""
+
+__all__ = sorted([*_WHERE, "margin"])
+
+
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE)

@@ -5,9 +5,8 @@ Each check returns a float64 array and raises ValueError naming the argument and
 
 import numpy as np
 
-from labelq.gp.links import LIKELIHOODS, get_link
-
-LINKS = tuple(LIKELIHOODS)
+LINKS = ("logistic", "probit", "softmax")
+"""Names of the likelihoods in labelq.gp.links (objects are accepted too)."""
 
 # Rows of class probabilities may be off from summing to one by accumulated rounding only.
 _SUM_TOLERANCE = 1e-6
@@ -37,12 +36,14 @@ def check_latent(mean, var, link):
     Binary links ("probit", "logistic") take shape (n_candidates,); "softmax" takes
     (n_candidates, n_classes). Variances must be finite and non-negative.
     """
-    link = get_link(link).name  # a likelihood object or its name
+    from labelq.gp.links import get_link  # SciPy only when arrays are checked, not at start-up
+
+    likelihood = get_link(link)  # a likelihood object or its name
     if mean is None or var is None:
         raise ValueError(f"a latent mean and var are needed here, got mean={mean!r}, var={var!r}")
     mean = np.asarray(mean, dtype=float)
     var = np.asarray(var, dtype=float)
-    ndim = 2 if get_link(link).n_latent is None else 1
+    ndim = 2 if likelihood.n_latent is None else 1
     if mean.ndim != ndim:
         raise ValueError(f"mean for link {link!r} must be {ndim}-D, got shape {mean.shape}")
     if var.shape != mean.shape:

@@ -6,10 +6,7 @@ from labelq.acquire.bald import bald_bits
 from labelq.acquire.checks import check_proba, check_strategy
 from labelq.acquire.entropy import entropy_bits
 from labelq.acquire.margin import margin
-
-STRATEGIES = ("entropy", "margin", "bald", "epig", "random")
-"""Acquisition rules. ``epig`` needs the joint predictive of candidates and targets, so its
-priority comes from :mod:`labelq.acquire.epig` (through labelq.policy), not from this module."""
+from labelq.acquire.names import STRATEGIES
 
 
 def display_score(strategy, proba, mean, var, link, seed=0):

@@ -50,9 +50,11 @@ def _as_class(answer: str, classes) -> str | None:
     return None
 
 
-def run_session(store, by: str, strategy=None) -> dict:
-    """The interactive loop; returns the summary it prints at the end."""
-    con = render.console()
+def run_session(store, by: str, strategy=None, con: Console | None = None) -> dict:
+    """The interactive loop; returns the summary it prints at the end. ``con`` receives the
+    cards, prompts and closing line (default stdout; `session --json` passes stderr so that
+    stdout carries only the JSON summary)."""
+    con = con or render.console()
     classes = store.classes
     session_id = store.start_session(by)
     first = reports.latest_mean_entropy(store)

@@ -33,24 +33,40 @@ def create_store(path: Path, classes: list[str]) -> Store:
 
 @dataclass
 class ImportResult:
-    """What an import added."""
+    """What an import added, how the file's columns were split and what was done with empty
+    feature cells (``missing``: "error", "drop-row" or "median"; counts per feature column)."""
 
     candidates: int
     labels: int
     features: list[str]
     metadata: list[str]
+    feature_rule: str
+    missing: str
+    missing_cells: dict[str, int]
+    dropped_rows: int
+    first_dropped_line: Optional[int]
+    filled_cells: dict[str, int]
+    filled_with: dict[str, float]
 
 
 def import_candidates(store: Store, csv_path: Path, id_column: str, features=None,
                       labels_column: Optional[str] = None, by: str = "import",
-                      progress=None) -> ImportResult:
-    """Read, validate and add a CSV of candidates in one transaction (nothing added on error)."""
+                      progress=None, meta=None, missing: str = "error") -> ImportResult:
+    """Read, validate and add a CSV of candidates in one transaction (nothing added on error).
+
+    ``features``/``meta`` set the split of the columns and ``missing`` the treatment of empty
+    feature cells, as in :func:`labelq.ingest.read_candidates`.
+    """
     table = read_candidates(csv_path, id_column, features=features, labels_column=labels_column,
-                            expected_features=store.feature_names or None, progress=progress)
+                            expected_features=store.feature_names or None, progress=progress,
+                            meta=meta, missing=missing)
     store.add_candidates(table.keys, table.X, table.meta, table.feature_names,
                          labels=table.labels, by=by)
     n_labels = sum(1 for v in (table.labels or []) if v is not None)
-    return ImportResult(len(table.keys), n_labels, table.feature_names, table.meta_columns)
+    gaps = table.missing
+    return ImportResult(len(table.keys), n_labels, table.feature_names, table.meta_columns,
+                        table.feature_rule, gaps.treatment, gaps.per_column, gaps.dropped_rows,
+                        gaps.first_dropped_line, gaps.filled_cells, gaps.filled_with)
 
 
 @dataclass
@@ -132,6 +148,8 @@ class Queue:
     strategy: str
     cold_start: bool
     fit: object
+    held: int = 0  # rows held for other labellers (left out of rows)
+    held_until: Optional[str] = None  # the latest expiry of those holds, UTC
 
 
 def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
@@ -159,4 +177,5 @@ def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
                      0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped,
                      r.reason)
             for r in found]
-    return Queue(rows, shown, cold, fit)
+    held, until = store.held_by_others(holder)
+    return Queue(rows, shown, cold, fit, held, until)

@@ -21,12 +21,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from labelq.errors import LabelqError
-from labelq.gp.averaging import load_model
-from labelq.gp.hyperparameters import median_distance
 from labelq.loop import settings
-from labelq.policy import FitOutcome, fit_labels, rank_pool, score_pool, uniform_scores
-from labelq.review import cohen_kappa, snapshot, stop_set
-from labelq.review.blas_threads import single_blas_thread
 
 Progress = Optional[Callable[[str, int, int], None]]
 
@@ -131,6 +126,12 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     previous fit's). How the model is fitted and the pool ranked is labelq.policy's, with
     `settings.POLICY` and the asked strategy; those settings are recorded with the fit.
     """
+    # the engine is imported here, when a refit is due, not when a command starts: `next` on
+    # current scores never loads SciPy
+    from labelq.policy import rank_pool, score_pool, uniform_scores
+    from labelq.review import cohen_kappa, snapshot, stop_set
+    from labelq.review.blas_threads import single_blas_thread
+
     t0 = time.perf_counter()
     classes = store.classes
     policy = settings.POLICY.with_(strategy=strategy)
@@ -204,8 +205,11 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     )
 
 
-def previous_outcome(fit) -> Optional[FitOutcome]:
-    """The policy's view of a recorded fit (None when it has no stored model)."""
+def previous_outcome(fit):
+    """The policy's view of a recorded fit, a FitOutcome (None when it has no stored model)."""
+    from labelq.gp.averaging import load_model
+    from labelq.policy import FitOutcome
+
     if fit is None or fit.model is None:
         return None
     return FitOutcome(load_model(fit.model), fit.hyper_mode or "average", fit.learnt_at or 0,
@@ -214,6 +218,9 @@ def previous_outcome(fit) -> Optional[FitOutcome]:
 
 def _fit_model(store, state, classes, previous, fingerprint, policy, progress, reuse_after=0):
     """Return (FitOutcome, reused an earlier model?)."""
+    from labelq.gp.hyperparameters import median_distance
+    from labelq.policy import fit_labels
+
     earlier = store.fit_with_fingerprint(fingerprint, after_id=reuse_after)
     if earlier is not None and earlier.model is not None:
         return previous_outcome(earlier), True
@@ -229,4 +236,6 @@ def _fit_model(store, state, classes, previous, fingerprint, policy, progress, r
 
 def small_fit_threads(n: int):
     """One BLAS thread for fits on few labels (threads only add overhead there), else unchanged."""
+    from labelq.review.blas_threads import single_blas_thread
+
     return single_blas_thread() if n < settings.THREADED_FIT_FROM else nullcontext()

@@ -8,10 +8,22 @@ and the rebuild all call these functions with one `PolicySettings`, recorded wit
 - `rank_pool` (queue.py): the head of the queue (cold start or spread-out batch), then the rest,
   with the reason for each row of the head.
 """
-from labelq.policy.fitting import FitOutcome, fit_labels
-from labelq.policy.queue import Queue, rank_pool
-from labelq.policy.scoring import PoolScores, score_pool, uniform_scores
-from labelq.policy.settings import PolicySettings
 
-__all__ = ["FitOutcome", "PolicySettings", "PoolScores", "Queue", "fit_labels", "rank_pool",
-           "score_pool", "uniform_scores"]
+from labelq.lazy import lazy_exports
+
+_WHERE = {
+    "FitOutcome": "labelq.policy.fitting",
+    "PolicySettings": "labelq.policy.settings",
+    "PoolScores": "labelq.policy.scoring",
+    "Queue": "labelq.policy.queue",
+    "fit_labels": "labelq.policy.fitting",
+    "rank_pool": "labelq.policy.queue",
+    "score_pool": "labelq.policy.scoring",
+    "uniform_scores": "labelq.policy.scoring",
+}
+"""Where each public name lives; imported on first use (labelq.lazy)."""
+
+__all__ = sorted(_WHERE)
+
+
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE)

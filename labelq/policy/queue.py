@@ -9,12 +9,9 @@ import numpy as np
 from labelq.acquire import cold_start, rank_order, select_batch, typical_start
 from labelq.acquire.coldstart import weighted_spread_order
 from labelq.gp.hyperparameters import median_distance
+from labelq.policy.reasons import FARTHEST, RANDOM, SPREAD, cluster_reason, strategy_reason
 from labelq.policy.scoring import PoolScores
 from labelq.policy.settings import PolicySettings
-
-
-SPREAD = "; chosen to spread the batch"
-"""Appended to the reason of every row of a spread-out batch after the first."""
 
 
 @dataclass
@@ -30,20 +27,6 @@ class Queue:
         """Row of rank 1 (the next candidate to label); -1 when nothing is unlabelled."""
         top = np.flatnonzero(self.rank == 1)
         return int(top[0]) if top.size else -1
-
-
-def _strategy_reason(strategy, proba_row, classes):
-    """Why the strategy asks for a candidate, in a grader's words."""
-    if strategy == "margin":
-        a, b = np.argsort(-proba_row)[:2]
-        return f"near the {classes[a]}/{classes[b]} boundary"
-    if strategy == "entropy":
-        return "the model cannot tell its classes apart here"
-    if strategy == "bald":
-        return "the model's own uncertainty is highest here"
-    if strategy == "epig":
-        return "informs the predictions of many similar candidates"
-    return "drawn at random"
 
 
 def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strategy: str,
@@ -70,14 +53,15 @@ def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strat
     order = rows[rank_order(scores.priority[rows], ids[rows], skipped)]
     if strategy == "random":
         head = order[:head_size]
-        reasons[head] = "drawn at random"
+        reasons[head] = RANDOM
     elif cold:
         head = _cold_head(X, rows[~skipped], np.flatnonzero(~unlabelled), settings, head_size,
                           reasons)
     else:
-        head = _spread_head(model, X, ids, scores, strategy, rows, skipped, batch_size)
+        head = _spread_head(model, X, ids, scores, strategy, rows, skipped, batch_size,
+                            settings.batch_shortlist)
         for t, r in enumerate(head):
-            why = _strategy_reason(strategy, scores.proba[r], classes)
+            why = strategy_reason(strategy, scores.proba[r], classes)
             reasons[r] = why if t == 0 else why + SPREAD
     rest = order[~np.isin(order, head)]
     final = np.concatenate([head, rest])
@@ -103,14 +87,14 @@ def _cold_head(X, free, labelled, settings, head_size, reasons):
                                       labelled=known, cap=median_distance(X[both]))
         head = both[order]
         for r, local in zip(head, order):
-            reasons[r] = f"represents a cluster of {size[int(local)]:,} unlabelled candidates"
+            reasons[r] = cluster_reason(size[int(local)])
         return head
     head = both[np.asarray(cold_start(X[both], n, labelled=known, seed=settings.seed))]
-    reasons[head] = "far from every labelled candidate"
+    reasons[head] = FARTHEST
     return head
 
 
-def _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size):
+def _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size, shortlist):
     """The first ``head_size`` picks as a spread-out batch (see labelq.acquire.select_batch)."""
     cache = {}
 
@@ -125,5 +109,5 @@ def _spread_head(model, X, ids, scores, strategy, rows, skipped, head_size):
 
     picks = select_batch(strategy, scores.proba[rows], scores.mean[rows], scores.var[rows],
                          scores.likelihood, head_size, cross_cov, ids[rows], skipped_mask=skipped,
-                         values=scores.priority[rows])
+                         values=scores.priority[rows], shortlist=shortlist)
     return rows[np.asarray(picks, dtype=np.int64)]

@@ -3,22 +3,22 @@
 May import ``labelq.acquire`` and ``labelq.gp``; knows nothing of the store or the CLI.
 """
 
-from labelq.review.advice import Advice, stopping_advice
-from labelq.review.chart import render_chart
-from labelq.review.kappa import cohen_kappa
-from labelq.review.png import PlotUnavailableError, write_png
-from labelq.review.replay import simulate
-from labelq.review.snapshot import snapshot
-from labelq.review.stop_set import stop_set
+from labelq.lazy import lazy_exports
 
-__all__ = [
-    "Advice",
-    "PlotUnavailableError",
-    "cohen_kappa",
-    "render_chart",
-    "simulate",
-    "snapshot",
-    "stop_set",
-    "stopping_advice",
-    "write_png",
-]
+_WHERE = {
+    "Advice": "labelq.review.advice",
+    "PlotUnavailableError": "labelq.review.png",
+    "cohen_kappa": "labelq.review.kappa",
+    "render_chart": "labelq.review.chart",
+    "simulate": "labelq.review.replay",
+    "snapshot": "labelq.review.snapshot",
+    "stop_set": "labelq.review.stop_set",
+    "stopping_advice": "labelq.review.advice",
+    "write_png": "labelq.review.png",
+}
+"""Where each public name lives; imported on first use (labelq.lazy)."""
+
+__all__ = sorted(_WHERE)
+
+
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE)

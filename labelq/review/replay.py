@@ -18,11 +18,9 @@ from labelq.gp import GPClassifier
 from labelq.gp.hyperparameters import median_distance
 from labelq.policy import PolicySettings, fit_labels, rank_pool, score_pool, uniform_scores
 from labelq.review.blas_threads import single_blas_thread
+from labelq.review.defaults import POOL_FRACTION, REFERENCE_ROWS
 from labelq.review.learning_curve import curve_summary
 
-REFERENCE_ROWS = 1000
-"""The reference model (the accuracy a model fitted on labels for the whole pool reaches) is fitted
-on a seeded sample of at most this many rows by default and scored on the whole pool."""
 
 
 def standardise(X: np.ndarray) -> np.ndarray:
@@ -90,11 +88,6 @@ def reference_accuracy(X, y, classes, settings: PolicySettings, rows: Optional[i
     model.fit(X[use], y[use], classes=classes)
     proba = model.predict_pool(X).proba
     return float(np.mean(np.asarray(classes)[proba.argmax(axis=1)] == y)), int(use.size)
-
-
-POOL_FRACTION = 0.9
-"""Each seed replays on its own seeded random share of the rows (the same for every strategy), so
-that seeds differ even for strategies that are deterministic given the pool."""
 
 
 def seed_rows(n: int, fraction: float, seed: int) -> np.ndarray:

@@ -1,4 +1,9 @@
-"""Alembic configured in code: the schema revisions ship inside the package, no alembic.ini.
+"""Alembic configured in code: the revisions ship inside the package; labelq reads no alembic.ini.
+
+The revisions live in the top-level folder ``migrations/`` of the source tree, which the build maps
+to the import package ``labelq.migrations`` (see pyproject.toml), so they are found the same way
+from a checkout, an editable install and a wheel. The root ``alembic.ini`` is for running them by
+hand from a checkout; labelq never reads it.
 
 ``Store.open`` calls :func:`upgrade` so older stores are brought to the head revision in place.
 """

@@ -1,4 +1,4 @@
-"""SQLAlchemy 2 typed models of the store; the Alembic revisions in ``labelq/migrations`` build them.
+"""SQLAlchemy 2 typed models of the store; the Alembic revisions in ``migrations/`` build them.
 
 Label and skip events are append-only: undo appends a retraction whose ``retracts_id`` points at the
 event it cancels. Every event carries the store's event mark at the moment it was written, which

@@ -78,10 +78,22 @@ class Cli:
         return json.loads(result.stdout)
 
     def counts(self) -> dict:
-        """Row counts of every table (the store unchanged <=> equal counts and equal content)."""
+        """Row counts of every table."""
         con = sqlite3.connect(self.db)
         try:
             return {t: con.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in TABLES}
+        finally:
+            con.close()
+
+    def dump(self) -> dict:
+        """Every row of every table, sorted (the store is unchanged <=> equal dumps); {} when
+        there is no store file."""
+        if not self.db.exists():
+            return {}
+        con = sqlite3.connect(self.db)
+        try:
+            return {t: sorted(con.execute(f"SELECT * FROM {t}").fetchall(), key=repr)
+                    for t in TABLES}
         finally:
             con.close()
 

@@ -63,13 +63,13 @@ def test_label_then_undo_gives_back_the_queue(cancer_store, cancer_csv):
 def test_label_errors_leave_store_unchanged(cancer_store, cancer_csv, user_error):
     truth = cancer_store.truth(cancer_csv)
     key = label_some(cancer_store, truth, 1)[0]
-    before = cancer_store.counts()
+    before = cancer_store.dump()
     user_error(cancer_store("label", "no-such-key", "benign"), "no-such-key")
     user_error(cancer_store("label", "c150", "healthy"), "healthy")
     user_error(cancer_store("label", key, truth[key]), key)
     user_error(cancer_store("skip", "no-such-key"), "no-such-key")
     user_error(cancer_store("next", "--strategy", "guess"), "guess")
-    assert cancer_store.counts() == before
+    assert cancer_store.dump() == before
 
 
 def test_relabel(cancer_store, cancer_csv):
@@ -85,9 +85,9 @@ def test_relabel(cancer_store, cancer_csv):
 
 
 def test_undo_with_nothing_to_undo(cancer_store, user_error):
-    before = cancer_store.counts()
+    before = cancer_store.dump()
     user_error(cancer_store("undo"), "nothing")
-    assert cancer_store.counts() == before
+    assert cancer_store.dump() == before
 
 
 def test_skip_sinks_to_the_bottom(cancer_store, cancer_csv):

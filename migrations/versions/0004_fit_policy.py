@@ -25,9 +25,12 @@ def upgrade() -> None:
 
 
 def downgrade() -> None:
-    with op.batch_alter_table("scores") as batch:
+    # ALTER TABLE ... DROP COLUMN in place (SQLite 3.35 and later): rebuilding `fits` in batch
+    # mode would drop a table that `scores` still references, which the store's foreign-key
+    # checks refuse
+    with op.batch_alter_table("scores", recreate="never") as batch:
         batch.drop_column("reason")
-    with op.batch_alter_table("fits") as batch:
+    with op.batch_alter_table("fits", recreate="never") as batch:
         batch.drop_column("learnt_at")
         batch.drop_column("hyper_mode")
         batch.drop_column("settings")

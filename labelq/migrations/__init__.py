@@ -1,1 +1,0 @@
-"""Alembic environment and schema revisions of the labelq store (shipped inside the wheel)."""
