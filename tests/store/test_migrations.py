@@ -5,6 +5,7 @@ from contextlib import closing
 from pathlib import Path
 
 import pytest
+from alembic import command
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
@@ -78,3 +79,32 @@ def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:
     with pytest.raises(NewerStoreError, match="0099_future"):
         Store.open(store.path)
     assert table_rows(store.path) == before
+
+
+def test_a_store_with_fits_goes_down_to_0003_and_back_keeping_its_data(store: Store) -> None:
+    """Revision 0004 (fit policy columns) on a store holding labels, fits and scores: down to the
+    previous head and up again in place; every label, fit and score row is kept, the new columns
+    come back empty (common practice for schema revisions, STYLE.md)."""
+    from labelq.loop import actions
+
+    from .conftest import orchard
+
+    keys, X, meta = orchard(40)
+    store.add_candidates(keys, X, meta, FEATURES)
+    for key, grade in zip(keys[:4], ["export", "local", "juice", "export"]):
+        actions.label(store, key, grade, "ana")
+    before = table_rows(store.path)
+    engine = store._engine
+    with writing(engine) as connection:
+        command.downgrade(alembic_config(connection), "0003")
+    with closing(sqlite3.connect(store.path)) as connection:
+        columns = [row[1] for row in connection.execute("PRAGMA table_info(fits)")]
+        assert "hyper_mode" not in columns
+    with writing(engine) as connection:
+        upgrade(connection, "head")
+    after = table_rows(store.path)
+    assert after == before
+    with closing(sqlite3.connect(store.path)) as connection:
+        assert connection.execute("SELECT COUNT(*) FROM fits WHERE hyper_mode IS NULL").fetchone()[0] \
+            == before["fits"]
+    assert store.check() == []
