@@ -11,15 +11,16 @@ from rich.markup import escape
 from labelq import __version__
 from labelq.acquire import STRATEGIES
 from labelq.cli import render
-from labelq.cli.options import (ByOption, DbOption, JsonOption, StrategyOption, db_path, open_store,
-                                user_errors)
+from labelq.cli.options import (ByOption, DbOption, ExportKind, JsonOption, OneLineErrors,
+                                StrategyOption, db_path, open_store, strategy_name, user_errors)
 from labelq.errors import LabelqError
 from labelq.loop import actions, maintain, reports, settings
-from labelq.review.replay import REFERENCE_ROWS
+from labelq.review.defaults import REFERENCE_ROWS
 from labelq.store.migrate import head_revision
 
 app = typer.Typer(
     name="labelq",
+    cls=OneLineErrors,
     help="Label the candidates that teach a Gaussian-process classifier the most.",
     no_args_is_help=True,
     add_completion=False,
@@ -84,33 +85,79 @@ def import_(
     id_column: Annotated[str, typer.Option(
         "--id", help="Column holding each candidate's unique key.")],
     features: Annotated[Optional[str], typer.Option(
-        "--features", help="Comma-separated feature columns (default: every numeric column).",
-        show_default=False)] = None,
+        "--features", help="Comma-separated columns that are exactly the features; every other "
+        "column is metadata.", show_default=False)] = None,
+    meta: Annotated[Optional[str], typer.Option(
+        "--meta", help="Comma-separated columns kept as metadata; every other column except --id "
+        "and --labels is a feature.", show_default=False)] = None,
+    missing: Annotated[str, typer.Option(
+        "--missing", help="An empty cell in a feature column: error (refuse the file), drop-row "
+        "(leave the row out) or median (fill with the column's median over the file).")
+    ] = "error",
     labels: Annotated[Optional[str], typer.Option(
         "--labels", help="Column of labels already known (empty cell = unlabelled).",
         show_default=False)] = None,
     db: DbOption = None,
     json: JsonOption = False,
 ):
-    """Add candidates from a CSV file; other text columns are kept as metadata."""
-    feature_list = [f.strip() for f in features.split(",")] if features else None
+    """Add candidates from a CSV file.
+
+    Which columns are features is a rule you can see and set: --features names exactly the
+    features; --meta names the metadata columns, every other column except --id and --labels
+    being a feature; with neither, a column is a feature when its first filled cell is a number,
+    and metadata otherwise. A feature cell that is empty refuses the file unless --missing says
+    what to do with it; one that is not a number always does. Nothing is added on any error.
+    """
+    from labelq.ingest import MISSING_TREATMENTS
+
+    if missing not in MISSING_TREATMENTS:
+        raise BadOption(f"unknown --missing treatment {missing!r}; choose one of "
+                        f"{', '.join(MISSING_TREATMENTS)}")
+    names = {option: None if text is None else [c.strip() for c in text.split(",") if c.strip()]
+             for option, text in (("features", features), ("meta", meta))}
     with open_store(db) as store, render.progress_bar("importing") as update:
         result = actions.import_candidates(
-            store, file, id_column, features=feature_list, labels_column=labels,
+            store, file, id_column, features=names["features"], meta=names["meta"],
+            labels_column=labels, missing=missing,
             progress=lambda rows, done, total: update(done, total, f"importing ({rows:,} rows)"))
         counts = store.counts()
     if json:
         render.print_json({"added": result.candidates, "labels": result.labels,
                            "features": result.features, "metadata": result.metadata,
-                           "candidates": counts["candidates"]})
+                           "candidates": counts["candidates"],
+                           "feature_rule": result.feature_rule, "missing": result.missing,
+                           "missing_cells": result.missing_cells,
+                           "dropped_rows": result.dropped_rows,
+                           "first_dropped_line": result.first_dropped_line,
+                           "filled_cells": result.filled_cells,
+                           "filled_with": result.filled_with})
         return
+    rule = {"features": "named by --features",
+            "meta": "every column but --id, --labels and --meta",
+            "first-filled-cell": "columns whose first filled cell is a number; set with --features "
+                                 "or --meta"}[result.feature_rule]
+    per_column = ", ".join(f"{name} {n:,}" for name, n in result.missing_cells.items())
+    n_missing = sum(result.missing_cells.values())
+    found = f"{n_missing:,} ({per_column})" if n_missing else "none"
+    if result.dropped_rows:
+        rows = "row" if result.dropped_rows == 1 else "rows"
+        treated = (f"; --missing drop-row left out {result.dropped_rows:,} {rows}, the first at "
+                   f"line {result.first_dropped_line}")
+    elif result.filled_with:
+        medians = ", ".join(f"{name} {value:.6g}" for name, value in result.filled_with.items())
+        treated = f"; --missing median filled them with the column median ({medians})"
+    else:
+        treated = f" (--missing {result.missing})"
     con = render.console()
-    con.print(f"Added {result.candidates:,} candidates with {len(result.features)} features "
-              f"({', '.join(result.features)}); the pool now holds {counts['candidates']:,}.")
+    con.print(f"Added {result.candidates:,} candidates; the pool now holds "
+              f"{counts['candidates']:,}.", markup=False)
+    con.print(f"Features ({len(result.features)}): {', '.join(result.features)} ({rule}).",
+              markup=False)
+    con.print(f"Metadata ({len(result.metadata)}): {', '.join(result.metadata) or 'none'}.",
+              markup=False)
+    con.print(f"Empty feature cells: {found}{treated}.", markup=False)
     if result.labels:
-        con.print(f"Recorded {result.labels:,} labels from column {labels!r}.")
-    if result.metadata:
-        con.print(f"Kept as metadata: {', '.join(result.metadata)}.")
+        con.print(f"Recorded {result.labels:,} labels from column {labels!r}.", markup=False)
 
 
 @app.command("next")
@@ -124,18 +171,19 @@ def next_(
 ):
     """Show the queue: the candidates whose labels would teach the model most."""
     with open_store(db) as store, render.progress_bar("refitting") as update:
-        queue = actions.next_queue(store, n, check_strategy(strategy), holder=person(by),
+        queue = actions.next_queue(store, n, strategy_name(strategy), holder=person(by),
                                    progress=lambda stage, d, t: update(d, t, stage))
         render_queue(store, queue, json)
 
 
-def render_queue(store, queue, json: bool) -> None:
-    """Print a queue as JSON or as a heading and a table."""
+def render_queue(store, queue, json: bool, echo: Optional[dict] = None) -> None:
+    """Print a queue as JSON (with ``echo``'s keys first, e.g. what was just recorded) or as a
+    heading, a table and a count of rows held for other labellers."""
     classes = store.classes
     if json:
-        render.print_json({"queue": render.queue_rows_json(queue, classes),
+        render.print_json({**(echo or {}), "queue": render.queue_rows_json(queue, classes),
                            "strategy": queue.strategy, "cold_start": queue.cold_start,
-                           "fit": queue.fit.id})
+                           "fit": queue.fit.id, "held_for_others": queue.held})
         return
     con = render.console()
     if not queue.rows:
@@ -143,6 +191,10 @@ def render_queue(store, queue, json: bool) -> None:
         return
     con.print(render.queue_heading(queue))
     con.print(render.queue_table(queue, classes, actions.meta_columns(queue.rows)))
+    if render.score_legend(queue, classes):
+        con.print(render.score_legend(queue, classes), style="dim")
+    if queue.held:
+        con.print(render.held_line(queue.held, queue.held_until), style="dim")
 
 
 @app.command()
@@ -193,12 +245,13 @@ def label(
     with open_store(db) as store, render.progress_bar("refitting") as update:
         who = person(by)
         actions.label(store, key, class_, who, note=note, relabel=relabel,
-                      strategy=check_strategy(strategy),
+                      strategy=strategy_name(strategy),
                       progress=lambda stage, d, t: update(d, t, stage))
-        queue = actions.next_queue(store, n, strategy, holder=who)
+        queue = actions.next_queue(store, n, strategy_name(strategy), holder=who)
         if not json:
             render.console().print(f"Labelled {key} as {class_}.", markup=False)
-        render_queue(store, queue, json)
+        render_queue(store, queue, json, echo={"labelled": {"key": key, "class": class_,
+                                                            "by": who, "note": note}})
 
 
 @app.command()
@@ -256,28 +309,48 @@ def status(
 @app.command()
 @user_errors
 def history(
+    by: Annotated[Optional[str], typer.Option(
+        "--by", metavar="fit|session|day", help="One row per fit, per sitting or per calendar day "
+        "(default: day once the labels span more than one day, else fit).",
+        show_default=False)] = None,
+    tz: Annotated[Optional[str], typer.Option(
+        "--tz", metavar="NAME", help="Time zone for days and sittings, an IANA name such as "
+        "Europe/Helsinki (default: $TZ, else the system's local zone).",
+        show_default=False)] = None,
     plot: Annotated[Optional[Path], typer.Option("--plot", help="Also write the chart as a PNG.",
                                                  show_default=False)] = None,
     db: DbOption = None,
     json: JsonOption = False,
 ):
-    """How the pool's uncertainty changed, fit by fit, as a table and a chart."""
+    """How the pool's uncertainty changed, by fit, sitting or day, as a table and a chart.
+
+    A sitting is a run of label events (undos included) by one labeller, each less than 30
+    minutes after the one before; a pause of 30 minutes or more starts a new sitting. Labels
+    given count only labels that still stand (undone or replaced ones do not). With --json:
+    under --by fit the list of fits, otherwise {"by", "time_zone", "rows"}.
+    """
+    zone = reports.history_zone(tz)
     with open_store(db) as store:
-        rows = reports.history(store)
+        view = reports.history_view(store, by, zone)
     if plot is not None:
-        reports.history_png(rows, plot)
+        reports.history_png(view, plot)
     if json:
-        render.print_json(rows)
+        render.print_json(view["rows"] if view["by"] == "fit" else view)
         return
-    render.print_history(render.console(), rows, reports.history_chart(rows))
+    con = render.console()
+    chart = reports.history_chart(view)
+    if view["by"] == "fit":
+        render.print_history(con, view["rows"], chart)
+    else:
+        render.print_grouped_history(con, view, chart)
     if plot is not None:
-        render.console().print(f"Wrote {plot}.")
+        con.print(f"Wrote {plot}.", markup=False)
 
 
 @app.command()
 @user_errors
 def export(
-    what: Annotated[str, typer.Argument(help="labels, predictions or model.", show_default=False)],
+    what: Annotated[ExportKind, typer.Argument(help="What to export.", show_default=False)],
     output: Annotated[Optional[Path], typer.Option(
         "-o", "--output", help="Write to this file instead of stdout.", show_default=False)] = None,
     db: DbOption = None,
@@ -285,13 +358,13 @@ def export(
 ):
     """Export the labels, the predictions for every candidate, or the fitted model (JSON)."""
     with open_store(db) as store:
-        text = reports.export(store, what, as_json=json)
+        text = reports.export(store, what.value, as_json=json)
     if output is None:
         typer.echo(text, nl=False)
     else:
         reports.write_text(output, text)
         render.err_console().print(f"Wrote {output}.")
-    if what == "predictions":
+    if what is ExportKind.predictions:
         render.err_console().print(render.CAUTION)
 
 
@@ -301,12 +374,17 @@ def session(
     strategy: StrategyOption = None,
     by: ByOption = None,
     db: DbOption = None,
+    json: JsonOption = False,
 ):
-    """Label at the prompt: shows the next candidate and asks for its class."""
+    """Label at the prompt: shows the next candidate and asks for its class. With --json the
+    prompts go to stderr and stdout gets one JSON summary at the end."""
     from labelq.cli.sitting import run_session
 
     with open_store(db) as store:
-        run_session(store, person(by), check_strategy(strategy))
+        summary = run_session(store, person(by), strategy_name(strategy),
+                              con=render.err_console() if json else None)
+    if json:
+        render.print_json(summary)
 
 
 @app.command()
@@ -394,11 +472,14 @@ def rebuild(
 def demo(
     dir: Annotated[Path, typer.Option(
         "--dir", help="Folder for the demo files and store.")] = Path("."),
+    json: JsonOption = False,
 ):
     """Build the orchard demo store, label a few apples and show the queue."""
     from labelq.cli.walkthrough import run_demo
 
-    run_demo(dir)
+    doc = run_demo(dir, quiet=json)
+    if json:
+        render.print_json(doc)
 
 
 def main() -> None:

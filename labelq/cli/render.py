@@ -6,21 +6,32 @@ import json
 import math
 import sys
 from contextlib import contextmanager
+from typing import Optional
 
+from rich.box import SIMPLE_HEAD
 from rich.console import Console
 from rich.markup import escape
 from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
                            TimeRemainingColumn)
 from rich.table import Table
 
+from labelq.policy.reasons import SPREAD
+from labelq.review.grouping import SITTING_GAP
+
 CAUTION = ("Probabilities are the model's estimates from the labels given so far. Validate them "
            "before relying on them for decisions that affect health or food safety, and follow "
            "local rules and licensed practice.")
 
-SCORE_NAMES = {"entropy": "entropy (bits)", "margin": "margin (p1-p2)", "bald": "BALD (bits)",
-               "epig": "EPIG (bits)", "random": "random draw"}
-BINARY_MARGIN = "margin (sd)"
+SCORE_NAMES = {"entropy": "entropy", "margin": "margin", "bald": "BALD", "epig": "EPIG",
+               "random": "random draw"}
+SCORE_LEGEND = {"entropy": "entropy of the class probabilities, bits",
+                "margin": "margin = p1 - p2, the gap between the two likeliest classes",
+                "bald": "BALD = what a label would tell the model, bits",
+                "epig": "EPIG = what a label would tell about the pool's predictions, bits",
+                "random": "random draw = the baseline's seeded uniform number"}
+BINARY_MARGIN = "margin"
 """Binary margin is |mean| / sqrt(1 + var) of the latent: in units of predictive spread."""
+BINARY_MARGIN_LEGEND = "margin = distance from the boundary in units of the model's spread"
 
 
 def console() -> Console:
@@ -123,9 +134,25 @@ def queue_table(queue, classes, meta_columns) -> Table:
         cells = [f"{batch}{row.rank}", escape(row.key) + claimed]
         if not cold:
             cells += [escape(classes[int(row.predicted)]), fmt_p(row.p_top), fmt_num(row.score)]
-        cells.append(escape(row.reason or f"ranked by {queue.strategy}"))
+        cells.append(escape((row.reason or f"ranked by {queue.strategy}").removesuffix(SPREAD)))
         table.add_row(*cells, *[escape(str(row.meta.get(m, ""))) for m in meta_columns])
     return table
+
+
+def held_line(count: int, until: Optional[str]) -> str:
+    """'2 rows held for another labeller until 14:05 (UTC)'."""
+    rows = "row" if count == 1 else "rows"
+    when = f" until {until[11:16]} (UTC)" if until else ""
+    return f"{count} {rows} held for another labeller{when}"
+
+
+def score_legend(queue, classes) -> str:
+    """One line under the queue saying what its score column means."""
+    if queue.cold_start:
+        return ""
+    if queue.strategy == "margin" and len(classes) == 2:
+        return BINARY_MARGIN_LEGEND
+    return SCORE_LEGEND.get(queue.strategy, "")
 
 
 def key_value_table(pairs) -> Table:
@@ -269,6 +296,58 @@ def print_history(con: Console, rows, chart: str) -> None:
                          else "")
                       + ("" if change is None else
                          f"; expected accuracy {change:+.3f}"), markup=False, style="dim")
+    con.print(chart)
+
+
+GROUP_NAMES = {"day": ("day", "days"), "session": ("sitting", "sittings")}
+"""Singular and plural of a group of each grouping, for the history screen."""
+
+
+def print_grouped_history(con: Console, view, chart: str) -> None:
+    """The `history` screen by day or sitting: a heading naming the time zone, one row per
+    group (# as on the chart's x axis; * where hyperparameters were relearnt; labeller only when
+    there are several), what the columns mean, then the chart."""
+    rows = view["rows"]
+    if not rows:
+        con.print("No labels yet: label a few candidates first.")
+        return
+    one, many = GROUP_NAMES[view["by"]]
+    standing = sum(r["labels_given"] for r in rows)
+    con.print(f"History by {one}, times in {view['time_zone']}: {len(rows):,} "
+              f"{one if len(rows) == 1 else many}, {standing:,} labels standing.", markup=False)
+    table = Table(show_edge=False, pad_edge=False, header_style="bold", box=SIMPLE_HEAD,
+                  collapse_padding=True)
+    table.add_column("#", justify="right", no_wrap=True)
+    table.add_column(one, no_wrap=True)
+    several = len({r["by"] for r in rows}) > 1
+    if several:
+        table.add_column("by", no_wrap=True, max_width=7, overflow="ellipsis")
+    for name in ("given", "total", "entropy", "change", "uncertain", "exp. acc."):
+        table.add_column(name, justify="right", no_wrap=True)
+    for i, r in enumerate(rows, start=1):
+        name = r["group"] if view["by"] == "day" else r["group"][5:]  # "12-01 22:03"
+        cells = [str(i), escape(name) + ("*" if r["relearnt"] else "")]
+        if several:
+            cells.append(escape(r["by"] or "-"))
+        change = r["entropy_change"]
+        cells += [f"{r['labels_given']:,}", f"{r['labels_total']:,}", fmt_num(r["mean_entropy"]),
+                  "-" if change is None else f"{change:+.3f}",
+                  "-" if r["n_uncertain"] is None else f"{r['n_uncertain']:,}",
+                  fmt_num(r["expected_accuracy"])]
+        table.add_row(*cells)
+    con.print(table)
+    minutes = int(SITTING_GAP.total_seconds() // 60)
+    legend = [
+        "given: labels that still stand (undone or replaced ones do not count)",
+        f"total: labels in the store at the end of the {one}",
+        f"entropy: mean over unlabelled candidates after the {one}'s last fit, bits",
+        f"change: against the previous {one}; uncertain: top p below 0.8",
+        "exp. acc.: the model's own estimate; *: hyperparameters relearnt",
+        f"kappa: - (agreement between {many} is not stored; --by fit has it per fit)",
+    ]
+    if view["by"] == "session":
+        legend.append(f"a sitting: one labeller's label events under {minutes} minutes apart")
+    con.print("\n".join(legend), style="dim", markup=False)
     con.print(chart)
 
 

@@ -8,20 +8,24 @@ import io
 import json
 import os
 import tempfile
+from bisect import bisect_right
+from datetime import date, datetime
 from pathlib import Path
 from typing import Optional
 
 import numpy as np
 
+from labelq import gp, review  # engine parts load on first use (labelq.lazy), not at start-up
 from labelq.errors import LabelqError
-from labelq.gp.averaging import load_model
 from labelq.gp.persistence import with_input_scaling
-from labelq.gp.links import probability_interval
 from labelq.ingest import read_candidates
 from labelq.loop import settings
 from labelq.loop.refit import ensure_fit, is_current
-from labelq.review import render_chart, simulate, stopping_advice, write_png
-from labelq.review.png import write_panels_png
+from labelq.review.advice import stopping_advice
+from labelq.review.chart import render_chart
+from labelq.review.grouping import (calendar_days, local, parse_utc, resolve_zone, sittings,
+                                    zone_label)
+from labelq.review.png import write_dated_panels_png, write_panels_png, write_png
 
 
 class UnknownExportError(LabelqError):
@@ -126,10 +130,15 @@ def history(store) -> list[dict]:
     """One row per fit (history --json contract), with how its hyperparameters were set
     (``hyper_mode``), whether this fit learnt them (``relearnt``) and, where it did, the change in
     the model's expected accuracy against the fit before (``accuracy_change``)."""
-    fits = {f.id: f for f in store.fits()}
+    return _fit_rows(store.fits(), store.snapshots())
+
+
+def _fit_rows(fits, snapshots) -> list[dict]:
+    """The rows of :func:`history` from the store's fits and snapshots."""
+    fits = {f.id: f for f in fits}
     rows = []
     before = None
-    for s in store.snapshots():
+    for s in snapshots:
         fit = fits.get(s["fit_id"])
         relearnt = bool(fit and fit.full_optimize)
         change = (s["expected_accuracy"] - before["expected_accuracy"]
@@ -152,9 +161,142 @@ def history(store) -> list[dict]:
     return rows
 
 
-def history_series(rows) -> dict:
-    """Mean entropy and expected accuracy against labels given, for charts."""
-    xs = [r["n_labels"] for r in rows]
+GROUPINGS = ("fit", "session", "day")
+"""How `history` groups its rows: one per fit, per sitting, per calendar day."""
+
+GROUP_WORDS = {"fit": "fit", "session": "sitting", "day": "day"}
+"""The word for one group of each grouping, for titles and axes."""
+
+
+class UnknownTimeZoneError(LabelqError):
+    """`history --tz` names no time zone the system knows."""
+
+
+class UnknownGroupingError(LabelqError):
+    """`history --by` names no grouping."""
+
+
+def history_zone(name: Optional[str] = None):
+    """The time zone days and sittings are shown in: the IANA zone ``name`` (``--tz``), else
+    the one ``$TZ`` names, else the process's local zone (None); see
+    labelq.review.grouping.resolve_zone."""
+    try:
+        return resolve_zone(name)
+    except ValueError as exc:
+        raise UnknownTimeZoneError(str(exc)) from None
+
+
+def history_view(store, by: Optional[str] = None, zone=None) -> dict:
+    """The history grouped ``by`` "fit", "session" (sittings) or "day" (calendar days in
+    ``zone``, a tzinfo or None for the local zone); with ``by`` None, "day" once the label
+    events span more than one calendar day, else "fit".
+
+    Returns ``{"by": ..., "time_zone": name of the zone, "rows": [...]}``: under "fit" the rows
+    of :func:`history`, otherwise those of :func:`history_groups`.
+    """
+    if by is not None and by not in GROUPINGS:
+        raise UnknownGroupingError(f"cannot group the history by {by!r}; choose one of "
+                                   f"{', '.join(GROUPINGS)}")
+    events = store.label_event_log()
+    if by is None:
+        days = calendar_days([parse_utc(e["at"]) for e in events], zone)
+        by = "day" if len(days) > 1 else "fit"
+    fits = store.fits()
+    fit_rows = _fit_rows(fits, store.snapshots())
+    rows = (fit_rows if by == "fit" else
+            history_groups(events, fits, fit_rows, by, zone))
+    return {"by": by, "time_zone": zone_label(zone), "rows": rows}
+
+
+def history_groups(events, fits, fit_rows, by: str, zone) -> list[dict]:
+    """One row per sitting (``by="session"``) or calendar day (``by="day"``) of the label
+    events, earliest first.
+
+    ``events`` is ``store.label_event_log()``, ``fits`` ``store.fits()`` and ``fit_rows`` the
+    rows of :func:`history`. A sitting is a run of label events (undos included) by one labeller,
+    each less than 30 minutes after that labeller's previous one (labelq.review.grouping); a day
+    is a local date in ``zone``. A fit belongs to the group of the latest label event it saw (its
+    event mark), so a refit made later (after a rebuild, say) stays with the labels it was made
+    from; fits made before any label belong to no group.
+
+    Keys of each row:
+    - ``group``: the local date (``2026-12-01``) or the sitting's local start
+      (``2026-12-01 22:03``); ``by``: the sitting's labeller (None for a day);
+    - ``start``, ``end``: the first and last label event, ISO-8601 local time with its offset;
+    - ``labels_given``: the group's labels that still stand (a label later undone, or replaced
+      by a relabel, does not count), so the column adds up to the labels in the store now;
+    - ``labels_total``: labels in the store after the group's last event, as they stood then;
+    - ``mean_entropy`` (bits), ``n_uncertain``, ``expected_accuracy``: the snapshot of the
+      group's last fit (None when the group has no fit);
+    - ``entropy_change``: mean entropy against the end of the nearest earlier group with a fit
+      (None for the first);
+    - ``relearnt``: whether any fit of the group learnt its hyperparameters;
+    - ``fits``: the ids of the group's fits.
+    Cohen's kappa between the ends of two groups is not given: only each fit's agreement with
+    the fit just before it is stored (``--by fit``), and older fits' predictions are not kept.
+    """
+    times = [parse_utc(e["at"]) for e in events]
+    groups = (calendar_days(times, zone) if by == "day" else
+              sittings(times, [e["by"] for e in events], zone))
+    group_of = {i: g for g, group in enumerate(groups) for i in group.members}
+    standing, still_standing = _labels_standing(events)
+    marks = [e["mark"] for e in events]
+    mark_of = {f.id: f.event_mark for f in fits}
+    fits_of = [[] for _ in groups]
+    for row in fit_rows:
+        seen = bisect_right(marks, mark_of.get(row["fit"], -1)) - 1
+        if seen >= 0:
+            fits_of[group_of[seen]].append(row)
+    rows, before = [], None
+    for group, members in zip(groups, fits_of):
+        last = members[-1] if members else None
+        entropy = last["mean_entropy"] if last else None
+        rows.append({
+            "group": group.name,
+            "by": group.by,
+            "start": local(group.start, zone).isoformat(),
+            "end": local(group.end, zone).isoformat(),
+            "labels_given": sum(events[i]["id"] in still_standing for i in group.members),
+            "labels_total": standing[max(group.members)],
+            "mean_entropy": entropy,
+            "entropy_change": (entropy - before if entropy is not None and before is not None
+                               else None),
+            "n_uncertain": last["n_uncertain"] if last else None,
+            "expected_accuracy": last["expected_accuracy"] if last else None,
+            "relearnt": any(r["relearnt"] for r in members),
+            "fits": [r["fit"] for r in members],
+        })
+        before = entropy if entropy is not None else before
+    return rows
+
+
+def _labels_standing(events) -> tuple[list[int], set[int]]:
+    """Replay the label events (id order): the number of labelled candidates after each event,
+    and the ids of the label events standing at the end (each candidate's latest label not
+    retracted, as the store's current labels)."""
+    live: dict[int, set[int]] = {}
+    count, counts = 0, []
+    for e in events:
+        held = live.setdefault(e["candidate_id"], set())
+        had = bool(held)
+        if e["retracts_id"] is None:
+            held.add(e["id"])
+        else:
+            held.discard(e["retracts_id"])
+        count += bool(held) - had
+        counts.append(count)
+    return counts, {max(held) for held in live.values() if held}
+
+
+def history_series(view) -> dict:
+    """Mean entropy and expected accuracy, for charts: against labels given under ``by="fit"``,
+    against the group's index (1, 2, ... as in the table) otherwise; groups without a fit are
+    left out."""
+    rows = [r for r in view["rows"] if r["mean_entropy"] is not None]
+    if view["by"] == "fit":
+        xs = [r["n_labels"] for r in rows]
+    else:
+        xs = [i for i, r in enumerate(view["rows"], start=1) if r["mean_entropy"] is not None]
     return {"mean entropy (bits)": (xs, [r["mean_entropy"] for r in rows]),
             "expected accuracy": (xs, [r["expected_accuracy"] for r in rows])}
 
@@ -163,25 +305,39 @@ HISTORY_TITLE = "Pool uncertainty by labels given"
 REPLAY_TITLE = "Accuracy over the pool by labels given"
 
 
-def history_chart(rows) -> str:
+def history_chart(view) -> str:
     """The history as plain-text charts, one panel per quantity on its own scale (each at most
-    80 columns)."""
-    return "\n".join(render_chart({name: xy}, f"{name} by labels given", "labels", name,
-                                   height=8)
-                      for name, xy in history_series(rows).items())
+    80 columns); the x axis is labels given, or the day's or sitting's number in the table."""
+    word = GROUP_WORDS[view["by"]]
+    along, x_label = (("labels given", "labels") if view["by"] == "fit" else
+                      (f"{word}", f"{word} (# in the table)"))
+    return "\n".join(render_chart({name: xy}, f"{name} by {along}", x_label, name, height=8)
+                     for name, xy in history_series(view).items())
 
 
-def history_png(rows, path: Path) -> None:
-    """The history chart as a PNG, one panel per quantity (needs the [plot] extra)."""
-    panels = [(name, xs, ys) for name, (xs, ys) in history_series(rows).items()]
-    write_panels_png(check_output(path), panels, HISTORY_TITLE, "labels")
+def history_png(view, path: Path) -> None:
+    """The history chart as a PNG, one panel per quantity (needs the [plot] extra); under
+    ``day`` and ``session`` the x axis is the date (the sitting's start) in the view's zone."""
+    if view["by"] == "fit":
+        panels = [(name, xs, ys) for name, (xs, ys) in history_series(view).items()]
+        write_panels_png(check_output(path), panels, HISTORY_TITLE, "labels")
+        return
+    word = GROUP_WORDS[view["by"]]
+    rows = [r for r in view["rows"] if r["mean_entropy"] is not None]
+    # wall-clock times without the offset: matplotlib then labels them as the user reads them
+    when = [(date.fromisoformat(r["group"]) if view["by"] == "day" else
+             datetime.fromisoformat(r["start"]).replace(tzinfo=None)) for r in rows]
+    panels = [(name, when, ys) for name, (_, ys) in history_series(view).items()]
+    x_label = f"{'day' if view['by'] == 'day' else 'sitting start'}, {view['time_zone']}"
+    write_dated_panels_png(check_output(path), panels, f"Pool uncertainty by {word}", x_label,
+                           whole_days=view["by"] == "day")
 
 
 def _model(fit):
     """The fit's model (GPClassifier or GridAverage), None when it has none."""
     if fit is None or fit.model is None:
         return None
-    return load_model(fit.model)
+    return gp.load_model(fit.model)
 
 
 def candidate_view(store, key: str) -> dict:
@@ -201,7 +357,7 @@ def candidate_view(store, key: str) -> dict:
         proba = clf.predict_proba(x)[0]
         m, v = clf.latent(x)
         for k, c in enumerate(classes):
-            lo, hi = probability_interval(m, v, np.array([k]), clf.likelihood_)
+            lo, hi = gp.probability_interval(m, v, np.array([k]), clf.likelihood_)
             view["p"][c] = {"p": float(proba[k]), "low": float(lo[0]), "high": float(hi[0])}
     labels = store.current_labels()
     if labels:
@@ -348,7 +504,7 @@ def simulate_csv(path: Path, id_column: str, truth: str, strategies, budget: int
         raise SimulationInputError(f"{truth_file or path}: column {truth!r} holds fewer than two classes")
     if budget > len(y):
         raise SimulationInputError(f"{path}: {len(y)} rows cannot supply a budget of {budget}")
-    result = simulate(table.X, y, strategies=tuple(strategies), budget=budget,
+    result = review.simulate(table.X, y, strategies=tuple(strategies), budget=budget,
                       seeds=tuple(range(seeds)), settings=settings.POLICY,
                       reference_rows=reference_rows, progress=progress)
     result["file"] = str(path)

@@ -58,6 +58,35 @@ def write_png(
 def write_panels_png(path, panels, title: str, x_label: str) -> None:
     """Write one panel per (name, xs, ys) in ``panels``, stacked with a shared x axis and each on
     its own y scale (quantities of different scales never share an axis)."""
+    fig, _ = _panels_figure(panels, title, x_label)
+    fig.tight_layout()
+    _save(fig, path)
+
+
+def write_dated_panels_png(path, panels, title: str, x_label: str,
+                           whole_days: bool = False) -> None:
+    """:func:`write_panels_png` for panels whose xs are dates or naive datetimes (wall-clock
+    time, drawn as given): the x axis is labelled with dates by matplotlib's
+    ConciseDateFormatter; with ``whole_days`` (one point per calendar day) the ticks fall on
+    days only, never between them."""
+    fig, axes = _panels_figure(panels, title, x_label)
+    from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, DayLocator
+
+    days = [x for _, xs, _ in panels for x in xs]
+    span = (max(days) - min(days)).days + 1 if days else 1
+    if whole_days and span <= 62:  # longer spans: the automatic choice is days or months anyway
+        locator = DayLocator(interval=max(1, -(-span // 8)))
+    else:
+        locator = AutoDateLocator(minticks=3, maxticks=8)
+    axes[-1].xaxis.set_major_locator(locator)
+    axes[-1].xaxis.set_major_formatter(ConciseDateFormatter(locator))
+    fig.tight_layout()
+    _save(fig, path)
+
+
+def _panels_figure(panels, title: str, x_label: str):
+    """The figure of :func:`write_panels_png` and its axes, top to bottom (not yet laid out
+    or saved)."""
     try:
         import matplotlib  # noqa: F401
         from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -75,5 +104,4 @@ def write_panels_png(path, panels, title: str, x_label: str) -> None:
         ax.grid(True, alpha=0.3)
     axes[0].set_title(title)
     axes[-1].set_xlabel(x_label)
-    fig.tight_layout()
-    _save(fig, path)
+    return fig, axes

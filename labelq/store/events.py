@@ -1,6 +1,6 @@
 """Labels and skips as append-only events; undo appends a retraction of the latest live event."""
 
-from typing import Optional
+from typing import Any, Optional
 
 import numpy as np
 from sqlalchemy import Connection, text
@@ -160,6 +160,16 @@ class EventsMixin(StoreCore):
                 {"m": mark},
             ).all()
         return [LabelRecord(*row) for row in rows]
+
+    def label_event_log(self) -> list[dict[str, Any]]:
+        """Every label event, retractions (undos) included, oldest first, as ``{"id",
+        "candidate_id", "by", "at", "mark", "retracts_id"}`` (``retracts_id`` is None for a
+        label, the retracted event's id for an undo)."""
+        with self._read() as connection:
+            rows = connection.execute(
+                text("SELECT id, candidate_id, by, at, mark, retracts_id FROM label_events ORDER BY id")
+            )
+            return [dict(row._mapping) for row in rows]
 
     def event_marks(self) -> list[int]:
         """The distinct event marks of label and skip events (and their retractions), ascending."""
