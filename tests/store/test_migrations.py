@@ -108,3 +108,13 @@ def test_a_store_with_fits_goes_down_to_0003_and_back_keeping_its_data(store: St
         assert connection.execute("SELECT COUNT(*) FROM fits WHERE hyper_mode IS NULL").fetchone()[0] \
             == before["fits"]
     assert store.check() == []
+
+
+def test_revision_ids_read_without_alembic_agree_with_alembic() -> None:
+    """labelq reads the revision graph from the files to spare Alembic's import at start-up; it
+    must be Alembic's own graph (Alembic's ScriptDirectory is the reference)."""
+    from labelq.store.migrate import known_revisions
+
+    scripts = ScriptDirectory.from_config(alembic_config())
+    assert head_revision() == scripts.get_current_head()
+    assert known_revisions() == {s.revision for s in scripts.walk_revisions()}
