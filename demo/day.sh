@@ -45,9 +45,14 @@ head_key() {
     "$PYTHON" -c 'import json, sys; print(json.load(open(sys.argv[1]))["queue"][0]["key"])' head.json
 }
 
-step "label the head of the queue $LABELS times, answering from orchard_truth.csv"
+# Three sorting days of four labels each: the store's clock (LABELQ_NOW, for demos and tests) is
+# set to the morning of each day, a minute per label, so that `history` has days to show.
+step "label the head of the queue $LABELS times over three days, answering from orchard_truth.csv"
 i=1
 while [ "$i" -le "$LABELS" ]; do
+    day=$(( (i - 1) / 4 + 21 ))
+    minute=$(( (i - 1) % 4 ))
+    export LABELQ_NOW="2026-09-${day}T07:0${minute}:00Z"
     key=$(head_key)
     grade=$(awk -F, -v key="$key" '{ sub(/\r$/, "") } NR > 1 && $1 == key { print $2; exit }' \
         orchard_truth.csv)
@@ -60,6 +65,8 @@ while [ "$i" -le "$LABELS" ]; do
     i=$((i + 1))
 done
 
+unset LABELQ_NOW
+
 step "skip the head of the queue, then undo the skip"
 key=$(head_key)
 labelq skip "$key" --by grader --db orchard.db
@@ -69,8 +76,8 @@ rm -f head.json
 step "status"
 labelq status --db orchard.db
 
-step "history"
-labelq history --db orchard.db
+step "history: one row per sorting day (in UTC here)"
+labelq history --tz UTC --db orchard.db
 
 step "export the predictions for every apple"
 labelq export predictions -o graded.csv --db orchard.db

@@ -52,6 +52,9 @@ def test_a_day_labels_twelve_apples_exports_and_replays(tmp_path: Path) -> None:
     assert result.returncode == 0, result.stdout[-3000:] + result.stderr[-3000:]
     assert result.stdout.count("-- label ") == LABELS
     assert f"== done: {folder}" in result.stdout
+    # the labels fall on three days (the day's clock): `history` groups them by day
+    for day in ("2026-09-21", "2026-09-22", "2026-09-23"):
+        assert day in result.stdout
 
     truth = {row["key"]: row["grade"] for row in _read_csv(folder / "orchard_truth.csv")}
     graded = _read_csv(folder / "graded.csv")
