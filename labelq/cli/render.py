@@ -29,9 +29,6 @@ SCORE_LEGEND = {"entropy": "entropy of the class probabilities, bits",
                 "bald": "BALD = what a label would tell the model, bits",
                 "epig": "EPIG = what a label would tell about the pool's predictions, bits",
                 "random": "random draw = the baseline's seeded uniform number"}
-BINARY_MARGIN = "margin"
-"""Binary margin is |mean| / sqrt(1 + var) of the latent: in units of predictive spread."""
-BINARY_MARGIN_LEGEND = "margin = distance from the boundary in units of the model's spread"
 
 
 def console() -> Console:
@@ -122,8 +119,7 @@ def queue_table(queue, classes, meta_columns) -> Table:
     if not cold:
         table.add_column("predicted")
         table.add_column("p", justify="right")
-        score_name = (BINARY_MARGIN if queue.strategy == "margin" and len(classes) == 2
-                      else SCORE_NAMES.get(queue.strategy, "score"))
+        score_name = SCORE_NAMES.get(queue.strategy, "score")
         table.add_column(score_name, justify="right")
     table.add_column("why", overflow="fold", min_width=16)
     for name in meta_columns:
@@ -150,8 +146,6 @@ def score_legend(queue, classes) -> str:
     """One line under the queue saying what its score column means."""
     if queue.cold_start:
         return ""
-    if queue.strategy == "margin" and len(classes) == 2:
-        return BINARY_MARGIN_LEGEND
     return SCORE_LEGEND.get(queue.strategy, "")
 
 
