@@ -122,14 +122,6 @@ class GridAverage:
         return tuple(float(v) for v in self.grid_[int(np.argmax(self.weights_))])
 
     # ----------------------------------------------------------------------------- predict
-    def _mix(self, parts):
-        """Mixture probabilities and moment-matched latent from per-member predictions."""
-        w = self.weights_
-        proba = sum(wk * p.proba for wk, p in zip(w, parts))
-        mean = sum(wk * p.mean for wk, p in zip(w, parts))
-        second = sum(wk * (p.var + p.mean ** 2) for wk, p in zip(w, parts))
-        return Prediction(proba, mean, np.maximum(second - mean ** 2, 0.0))
-
     def member_predictions(self, X, **kwargs):
         """List of each member's `predict_pool(X, **kwargs)` (same order as weights_)."""
         return [m.predict_pool(X, **kwargs) for m in self.members_]
@@ -137,15 +129,13 @@ class GridAverage:
     def predict_pool(self, X, **kwargs):
         """`Prediction` of the average for a pool: mixture probabilities (n, C) and the moment-
         matched latent mean and variance; keyword arguments go to each member's predict_pool."""
-        return self._mix(self.member_predictions(X, **kwargs))
+        return mix_predictions(self.member_predictions(X, **kwargs), self.weights_)
 
     def latent(self, X):
         """Moment-matched latent (mean, var) of the mixture: (n,) binary, (n, C) multi-class."""
-        parts = [Prediction(None, *m.latent(X)) for m in self.members_]
-        w = self.weights_
-        mean = sum(wk * p.mean for wk, p in zip(w, parts))
-        second = sum(wk * (p.var + p.mean ** 2) for wk, p in zip(w, parts))
-        return mean, np.maximum(second - mean ** 2, 0.0)
+        mixed = mix_predictions([Prediction(None, *m.latent(X)) for m in self.members_],
+                                self.weights_)
+        return mixed.mean, mixed.var
 
     def predict_proba(self, X):
         """Mixture of the members' averaged class probabilities, (n, C) in classes_ order."""
@@ -208,6 +198,17 @@ class GridAverage:
         model.fit_warnings_ = sorted({w for m in model.members_ for w in m.fit_warnings_})
         model._summarise()
         return model
+
+
+def mix_predictions(parts, weights):
+    """`Prediction` of a weighted mixture from its members' predictions: the weighted sum of
+    the probabilities (None when the parts carry none) and the moment-matched latent, mean
+    sum_k w_k m_k and variance sum_k w_k (v_k + m_k^2) - mean^2 (law of total variance)."""
+    proba = (None if parts[0].proba is None
+             else sum(wk * p.proba for wk, p in zip(weights, parts)))
+    mean = sum(wk * p.mean for wk, p in zip(weights, parts))
+    second = sum(wk * (p.var + p.mean ** 2) for wk, p in zip(weights, parts))
+    return Prediction(proba, mean, np.maximum(second - mean ** 2, 0.0))
 
 
 def load_model(source):

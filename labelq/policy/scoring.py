@@ -15,8 +15,9 @@ from typing import Optional
 
 import numpy as np
 
-from labelq.acquire import bald_bits, entropy_bits, margin
+from labelq.acquire import bald_bits, entropy_bits, margin, priority
 from labelq.acquire.epig import binary_joint, epig_bits, softmax_joint
+from labelq.gp.averaging import mix_predictions
 from labelq.gp.links import probability_interval
 from labelq.policy.settings import PolicySettings
 
@@ -75,9 +76,7 @@ def score_pool(model, X, settings: PolicySettings, strategy: str, unlabelled: np
     """
     ms, w = members(model)
     parts = [m.predict_pool(X, n_jobs=n_jobs) for m in ms]
-    proba = sum(wk * p.proba for wk, p in zip(w, parts))
-    mean = sum(wk * p.mean for wk, p in zip(w, parts))
-    var = np.maximum(sum(wk * (p.var + p.mean ** 2) for wk, p in zip(w, parts)) - mean ** 2, 0.0)
+    proba, mean, var = mix_predictions(parts, w)
     link = model.likelihood_
     entropy = entropy_bits(proba)
     # p1 - p2 for every number of classes. For two classes the spread-scaled distance
@@ -90,17 +89,13 @@ def score_pool(model, X, settings: PolicySettings, strategy: str, unlabelled: np
     w_major = w[major] / w[major].sum()
     parts_major = [p for p, keep in zip(parts, major) if keep]
     bald = (_mixture_bald(parts_major, w_major, link, settings.seed) if need_bald else None)
-    if strategy == "entropy":
-        prio = entropy
-    elif strategy == "margin":
-        prio = 1.0 / (1.0 + marg)  # nearest the boundary first
-    elif strategy == "bald":
+    if strategy == "bald":
         prio = bald
     elif strategy == "epig":
         prio = _epig_priority([m for m, keep in zip(ms, major) if keep], w_major, X, bald,
                               unlabelled, settings, link)
-    else:
-        prio = np.random.default_rng(settings.seed).uniform(size=len(proba))
+    else:  # entropy, margin (p1 - p2: no latent passed) and random: acquire's own priority
+        prio = priority(strategy, proba, None, None, link, settings.seed)
     return PoolScores(proba, mean, var, prio, entropy, marg, bald, link)
 
 
