@@ -20,3 +20,20 @@ def lazy_exports(package: str, where: dict):
         return sorted(set(namespace) | set(where))
 
     return __getattr__, __dir__
+
+
+class LazyModule:
+    """A stand-in for a module that imports it on first attribute access, so a command-line
+    module can name the engine's modules at the top and still start without loading them."""
+
+    def __init__(self, name: str) -> None:
+        self._name = name
+        self._module = None
+
+    def __getattr__(self, attr: str):
+        if self._module is None:
+            self._module = import_module(self._name)
+        return getattr(self._module, attr)
+
+    def __repr__(self) -> str:
+        return f"<lazy module {self._name!r}>"

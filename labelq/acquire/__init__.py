@@ -3,7 +3,6 @@
 Pure NumPy; imports nothing of labelq but :mod:`labelq.gp`. Entropies and BALD are in bits.
 """
 
-from labelq.acquire.margin import margin  # eager: the name is also a submodule's
 from labelq.lazy import lazy_exports
 
 _WHERE = {
@@ -13,6 +12,7 @@ _WHERE = {
     "cold_start": "labelq.acquire.coldstart",
     "display_score": "labelq.acquire.scores",
     "entropy_bits": "labelq.acquire.entropy",
+    "margin": "labelq.acquire.margins",
     "priority": "labelq.acquire.scores",
     "rank_order": "labelq.acquire.ranking",
     "select_batch": "labelq.acquire.batch",
@@ -20,7 +20,7 @@ _WHERE = {
 }
 """Where each public name lives; imported on first use (labelq.lazy)."""
 
-__all__ = sorted([*_WHERE, "margin"])
+__all__ = sorted(_WHERE)
 
 
 __getattr__, __dir__ = lazy_exports(__name__, _WHERE)

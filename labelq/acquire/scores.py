@@ -5,7 +5,7 @@ import numpy as np
 from labelq.acquire.bald import bald_bits
 from labelq.acquire.checks import check_proba, check_strategy
 from labelq.acquire.entropy import entropy_bits
-from labelq.acquire.margin import margin
+from labelq.acquire.margins import margin
 from labelq.acquire.names import STRATEGIES
 
 
@@ -13,7 +13,7 @@ def display_score(strategy, proba, mean, var, link, seed=0):
     """The value shown in the queue's ``score`` column, shape (n_candidates,).
 
     entropy: entropy of the averaged class probabilities in bits; margin: the margin itself
-    (smaller = closer to the boundary, see :func:`labelq.acquire.margin.margin`); bald: the
+    (smaller = closer to the boundary, see :func:`labelq.acquire.margins.margin`); bald: the
     mutual information in bits; random: a seeded uniform(0, 1) draw.
 
     Parameters

@@ -9,14 +9,23 @@ import typer
 from rich.markup import escape
 
 from labelq import __version__
-from labelq.acquire import STRATEGIES
-from labelq.cli import render
+from labelq.acquire.names import STRATEGIES
+from labelq.cli import render, review_commands
 from labelq.cli.options import (ByOption, DbOption, ExportKind, JsonOption, OneLineErrors,
                                 StrategyOption, db_path, open_store, strategy_name, user_errors)
 from labelq.errors import LabelqError
-from labelq.loop import actions, maintain, reports, settings
+from labelq.lazy import LazyModule
+from labelq.loop import settings
+from labelq.loop.people import default_person
+from labelq.loop.queue_view import meta_columns
 from labelq.review.defaults import REFERENCE_ROWS
 from labelq.store.migrate import head_revision
+
+# The engine loads on first use: `labelq --version` and `next` on a current store need none of it.
+actions = LazyModule("labelq.loop.actions")
+maintain = LazyModule("labelq.loop.maintain")
+reports = LazyModule("labelq.loop.reports")
+audits = LazyModule("labelq.loop.audit")
 
 app = typer.Typer(
     name="labelq",
@@ -56,7 +65,7 @@ def check_strategy(strategy: Optional[str]) -> Optional[str]:
 
 
 def person(by: Optional[str]) -> str:
-    return by or actions.default_person()
+    return by or default_person()
 
 
 @app.command()
@@ -170,16 +179,22 @@ def next_(
     json: JsonOption = False,
 ):
     """Show the queue: the candidates whose labels would teach the model most."""
+    from labelq.loop.quick import quick_next_queue
+
+    holder = by or default_person()
+    quick = quick_next_queue(db_path(db), n, strategy_name(strategy), holder)
+    if quick is not None:  # current scores: read without loading the engine
+        render_queue(quick[0], quick[1], json)
+        return
     with open_store(db) as store, render.progress_bar("refitting") as update:
-        queue = actions.next_queue(store, n, strategy_name(strategy), holder=person(by),
+        queue = actions.next_queue(store, n, strategy_name(strategy), holder=holder,
                                    progress=lambda stage, d, t: update(d, t, stage))
-        render_queue(store, queue, json)
+        render_queue(store.classes, queue, json)
 
 
-def render_queue(store, queue, json: bool, echo: Optional[dict] = None) -> None:
+def render_queue(classes: list[str], queue, json: bool, echo: Optional[dict] = None) -> None:
     """Print a queue as JSON (with ``echo``'s keys first, e.g. what was just recorded) or as a
     heading, a table and a count of rows held for other labellers."""
-    classes = store.classes
     if json:
         render.print_json({**(echo or {}), "queue": render.queue_rows_json(queue, classes),
                            "strategy": queue.strategy, "cold_start": queue.cold_start,
@@ -190,7 +205,7 @@ def render_queue(store, queue, json: bool, echo: Optional[dict] = None) -> None:
         con.print("Every candidate is labelled: the queue is empty.")
         return
     con.print(render.queue_heading(queue))
-    con.print(render.queue_table(queue, classes, actions.meta_columns(queue.rows)))
+    con.print(render.queue_table(queue, classes, meta_columns(queue.rows)))
     if render.score_legend(queue, classes):
         con.print(render.score_legend(queue, classes), style="dim")
     if queue.held:
@@ -215,12 +230,18 @@ def show(
               "skipped" if view["skipped"] else f"queue rank {view['rank']}" if view["rank"] else
               "unranked")
     con.print(f"[bold]{escape(view['key'])}[/bold] ({escape(status)})")
+    from labelq.cli.label_tables import current_label_line, history_table
+
+    if current_label_line(view):
+        con.print(current_label_line(view), markup=False)
     features = [(k, render.fmt_value(v)) for k, v in view["features"].items()]
     con.print(render.key_value_table(list(view["meta"].items()) + features))
     if view["p"]:
         con.print(render.probability_table(view))
     if view["nearest"]:
         con.print(render.nearest_table(view["nearest"]))
+    if view["history"]:
+        con.print(history_table(view["history"]))
 
 
 LabelNote = Annotated[Optional[str], typer.Option("--note", help="A note kept with the label.",
@@ -231,7 +252,8 @@ LabelNote = Annotated[Optional[str], typer.Option("--note", help="A note kept wi
 @user_errors
 def label(
     key: Annotated[str, typer.Argument(help="The candidate's key.", show_default=False)],
-    class_: Annotated[str, typer.Argument(metavar="CLASS", help="The class you give it.",
+    class_: Annotated[str, typer.Argument(metavar="CLASS", help="The class you give it: its name "
+                                          "(any case) or its number in the order given to init.",
                                           show_default=False)],
     note: LabelNote = None,
     by: ByOption = None,
@@ -247,10 +269,13 @@ def label(
         actions.label(store, key, class_, who, note=note, relabel=relabel,
                       strategy=strategy_name(strategy),
                       progress=lambda stage, d, t: update(d, t, stage))
+        from labelq.store.classes import resolve_class
+
+        class_ = resolve_class(class_, store.classes)  # the stored name, as the store matched it
         queue = actions.next_queue(store, n, strategy_name(strategy), holder=who)
         if not json:
             render.console().print(f"Labelled {key} as {class_}.", markup=False)
-        render_queue(store, queue, json, echo={"labelled": {"key": key, "class": class_,
+        render_queue(store.classes, queue, json, echo={"labelled": {"key": key, "class": class_,
                                                             "by": who, "note": note}})
 
 
@@ -275,13 +300,18 @@ def skip(
 @app.command()
 @user_errors
 def undo(
+    key: Annotated[Optional[str], typer.Argument(
+        help="Take back this candidate's current label or skip instead (a relabel's earlier "
+        "label comes back).", show_default=False)] = None,
     by: ByOption = None,
     db: DbOption = None,
     json: JsonOption = False,
 ):
-    """Take back the most recent label or skip (a retraction is recorded; nothing is deleted)."""
+    """Take back the most recent label or skip, or with a key that candidate's current label or
+    skip (a retraction is recorded; nothing is deleted)."""
     with open_store(db) as store, render.progress_bar("refitting") as update:
-        step = actions.undo(store, person(by), progress=lambda stage, d, t: update(d, t, stage))
+        step = actions.undo(store, person(by), key=key,
+                            progress=lambda stage, d, t: update(d, t, stage))
     event = step.event
     if json:
         render.print_json({"undone": event.kind, "key": event.key, "class": event.class_})
@@ -304,6 +334,50 @@ def status(
         render.print_json(doc)
         return
     render.print_status(render.console(), doc)
+
+
+@app.command()
+@user_errors
+def audit(
+    n: Annotated[Optional[int], typer.Option(
+        "-n", help="Draw N more unlabelled candidates at random to audit.", min=1,
+        show_default=False)] = None,
+    seed: Annotated[Optional[int], typer.Option(
+        "--seed", help="Seed of the draw (default: a fresh one, recorded with the audit).",
+        show_default=False)] = None,
+    plot: Annotated[Optional[Path], typer.Option(
+        "--plot", metavar="FILE.png", help="Also write the reliability diagram as a PNG.",
+        show_default=False)] = None,
+    by: ByOption = None,
+    db: DbOption = None,
+    json: JsonOption = False,
+):
+    """Measure the model's accuracy on a random sample: draw one (-n N), or report it.
+
+    Audit items come up in `next` and `session`, one in five while any wait, without the
+    model's prediction. Each is scored against the prediction made before its label, then it
+    trains the model like any other label.
+    """
+    with open_store(db) as store:
+        drawn = None
+        if n is not None:
+            with render.progress_bar("refitting") as update:  # a draw needs a current model
+                drawn = audits.draw(store, n, person(by), seed,
+                                    progress=lambda stage, d, t: update(d, t, stage))
+        doc = audits.report(store)
+        snap = reports.status(store)["snapshot"] if not json else None
+    if plot is not None:
+        if not doc or not doc["n"]:
+            raise BadOption("no audit item is scored yet, so there is no reliability diagram "
+                            "to plot")
+        audits.plot(doc, reports.check_output(plot))
+    if json:
+        render.print_json({"drawn": None if drawn is None else
+                           {"audit": drawn.audit_id, "n": drawn.n,
+                            "drawn_from": drawn.drawn_from, "seed": drawn.seed},
+                           "audit": doc})
+        return
+    render.print_audit(render.console(), drawn, doc, snap, plot)
 
 
 @app.command()
@@ -480,6 +554,9 @@ def demo(
     doc = run_demo(dir, quiet=json)
     if json:
         render.print_json(doc)
+
+
+review_commands.register(app)
 
 
 def main() -> None:

@@ -12,9 +12,8 @@ import typer
 from typer.core import TyperGroup
 from typer.exceptions import TyperException
 
-from labelq.acquire import STRATEGIES
+from labelq.acquire.names import STRATEGIES
 from labelq.errors import LabelqError
-from labelq.store import Store
 
 Strategy = Enum("Strategy", {name: name for name in STRATEGIES}, type=str)
 """The acquisition strategies as a Typer choice."""
@@ -49,8 +48,10 @@ def db_path(db: Optional[Path]) -> Path:
     return Path(env) if env else Path("labelq.db")
 
 
-def open_store(db: Optional[Path]) -> Store:
+def open_store(db: Optional[Path]):
     """Open the store named by --db (upgrading it in place when it is older)."""
+    from labelq.store import Store
+
     return Store.open(db_path(db))
 
 

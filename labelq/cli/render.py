@@ -83,12 +83,14 @@ def queue_rows_json(queue, classes) -> list[dict]:
     """The `next --json` rows of the contract in DESIGN.md."""
     out = []
     for row in queue.rows:
+        audit = getattr(row, "audit", False)  # an audit item: no prediction is shown
         out.append({
-            "rank": int(row.rank),
+            "rank": None if audit else int(row.rank),
             "key": row.key,
-            "predicted": classes[int(row.predicted)],
-            "p": {c: round_p(p) for c, p in zip(classes, row.probabilities)},
-            "score": round(float(row.score), 4),
+            "audit": audit,
+            "predicted": None if audit else classes[int(row.predicted)],
+            "p": None if audit else {c: round_p(p) for c, p in zip(classes, row.probabilities)},
+            "score": None if audit else round(float(row.score), 4),
             "strategy": queue.strategy,
             "reason": row.reason,
             "meta": row.meta,
@@ -103,9 +105,12 @@ def queue_heading(queue) -> str:
         return ("Cold start: fewer than two classes have labels, so the model cannot rank yet. "
                 "These are typical candidates of clusters of the pool, each standing for many "
                 "others; no prediction is shown because there is none yet.")
+    audit = (" Rows marked A are audit items, drawn at random to measure accuracy; their "
+             "prediction is hidden so that it cannot lead you."
+             if any(getattr(r, "audit", False) for r in queue.rows) else "")
     return (f"Ranked by {queue.strategy} after fit {fit.id} on {fit.n_labels} labels. Rows marked "
             f"+ form a batch chosen together and spread out, so their scores need not be in "
-            f"order.")
+            f"order.{audit}")
 
 
 def queue_table(queue, classes, meta_columns) -> Table:
@@ -126,9 +131,12 @@ def queue_table(queue, classes, meta_columns) -> Table:
         table.add_column(escape(name), overflow="fold")
     for row in queue.rows:
         claimed = "" if not getattr(row, "skipped", False) else " (skipped)"
+        audit = getattr(row, "audit", False)
         batch = "+" if row.reason and not cold and queue.strategy != "random" else ""
-        cells = [f"{batch}{row.rank}", escape(row.key) + claimed]
-        if not cold:
+        cells = ["A" if audit else f"{batch}{row.rank}", escape(row.key) + claimed]
+        if not cold and audit:  # the prediction an audit tests is not shown to the labeller
+            cells += ["-", "-", "-"]
+        elif not cold:
             cells += [escape(classes[int(row.predicted)]), fmt_p(row.p_top), fmt_num(row.score)]
         cells.append(escape((row.reason or f"ranked by {queue.strategy}").removesuffix(SPREAD)))
         table.add_row(*cells, *[escape(str(row.meta.get(m, ""))) for m in meta_columns])
@@ -236,8 +244,35 @@ def print_status(con: Console, doc) -> None:
             ("expected accuracy", f"{snap['expected_accuracy']:.3f} (the model's own estimate)"),
             ("agreement with previous fit", "-" if kappa is None else f"kappa {kappa:.3f}"),
         ]))
+    audit = doc.get("audit")
+    if audit is not None:
+        con.print(audit_line(audit, snap), markup=False)
+        if audit.get("calibration"):
+            con.print(calibration_warning(audit), markup=False)
     con.print(f"[bold]Advice:[/bold] {escape(doc['advice']['message'])}")
     con.print(CAUTION, style="dim")
+
+
+def audit_line(audit, snap=None) -> str:
+    """'Audit: 0.86 right (95% interval 0.74-0.93) on 40 items; the model expected 0.91 for them'."""
+    pending = (f"; {audit['pending']} of {audit['drawn']} still to label"
+               if audit.get("pending") else "")
+    if not audit["n"]:
+        return f"Audit: no item scored yet{pending}."
+    pool = ("" if snap is None else
+            f"; for the whole pool it expects {snap['expected_accuracy']:.2f}")
+    return (f"Audit (measured): {audit['accuracy']:.2f} right, 95% interval "
+            f"{audit['low']:.2f}-{audit['high']:.2f}, on {audit['n']} random items; the model "
+            f"expected {audit['expected']:.2f} for the same items{pool}{pending}.")
+
+
+def calibration_warning(audit) -> str:
+    """One line flagging the pool's probabilities as too high or too low."""
+    if audit["calibration"] == "over-confident":
+        return ("Over-confident: the audit found the model right less often than its own "
+                "probabilities say; read every p in the queue and the export as too high.")
+    return ("Under-confident: the audit found the model right more often than its own "
+            "probabilities say; read every p in the queue and the export as too low.")
 
 
 HYPER_WORDS = {
@@ -269,28 +304,45 @@ def print_history(con: Console, rows, chart: str) -> None:
         con.print("No fits yet: label a few candidates first.")
         return
     table = Table(show_edge=False, pad_edge=False, header_style="bold")
+    audited = any((r.get("audit") or {}).get("n") for r in rows)
+    # within 80 columns: the sitting column gives way to the audit (`--by session` has sittings)
+    sittings = not audited and any(r["session"] is not None for r in rows)
     for name, justify in [("fit", "right"), ("sess.", "right"), ("labels", "right"),
                           ("entropy", "right"), ("uncertain", "right"), ("exp. acc.", "right"),
-                          ("kappa", "right"), ("at (UTC)", "left")]:
-        table.add_column(name, justify=justify, no_wrap=True)
+                          ("kappa", "right"), ("at (UTC)", "left"), ("audit", "right")]:
+        if (name != "sess." or sittings) and (name != "audit" or audited):
+            table.add_column(name, justify=justify, no_wrap=True)
     for r in rows:
-        table.add_row(str(r["fit"]) + ("*" if r.get("relearnt") else ""),
-                      "-" if r["session"] is None else str(r["session"]),
-                      str(r["n_labels"]), fmt_num(r["mean_entropy"]), f"{r['n_uncertain']:,}",
-                      fmt_num(r["expected_accuracy"]), fmt_num(r["kappa"]), short_time(r["at"]))
+        cells = [str(r["fit"]) + ("*" if r.get("relearnt") else "")]
+        if sittings:
+            cells.append("-" if r["session"] is None else str(r["session"]))
+        cells += [str(r["n_labels"]), fmt_num(r["mean_entropy"]), f"{r['n_uncertain']:,}",
+                  fmt_num(r["expected_accuracy"]), fmt_num(r["kappa"]), short_time(r["at"])]
+        if audited:
+            cells.append(audit_cell(r.get("audit")))
+        table.add_row(*cells)
     con.print(table)
     con.print("entropy: mean over unlabelled candidates, bits; uncertain: top p below 0.8;\n"
-              "exp. acc.: the model's own estimate; kappa: agreement with the previous fit",
+              "exp. acc.: the model's own estimate; kappa: agreement with the previous fit"
+              + (";\naudit: share right / items scored, random audit items so far "
+                 "(`labelq audit`: interval)" if audited else ""),
               style="dim")
     for r in rows:
         if r.get("relearnt"):
             change = r.get("accuracy_change")
             con.print(f"* fit {r['fit']}: hyperparameters learnt at {r['n_labels']} labels"
-                      + (f" (from the grid average)" if r.get("hyper_mode_before") == "average"
+                      + (" (from the grid average)" if r.get("hyper_mode_before") == "average"
                          else "")
                       + ("" if change is None else
                          f"; expected accuracy {change:+.3f}"), markup=False, style="dim")
     con.print(chart)
+
+
+def audit_cell(doc) -> str:
+    """'0.86/40': the audit's measured accuracy and items scored; '-' before any."""
+    if not doc or not doc.get("n"):
+        return "-"
+    return f"{doc['accuracy']:.2f}/{doc['n']}"
 
 
 GROUP_NAMES = {"day": ("day", "days"), "session": ("sitting", "sittings")}
@@ -316,7 +368,9 @@ def print_grouped_history(con: Console, view, chart: str) -> None:
     several = len({r["by"] for r in rows}) > 1
     if several:
         table.add_column("by", no_wrap=True, max_width=7, overflow="ellipsis")
-    for name in ("given", "total", "entropy", "change", "uncertain", "exp. acc."):
+    audited = any((r.get("audit") or {}).get("n") for r in rows)
+    for name in ("given", "total", "entropy", "change", "uncertain", "exp. acc.") + (
+            ("audit",) if audited else ()):
         table.add_column(name, justify="right", no_wrap=True)
     for i, r in enumerate(rows, start=1):
         name = r["group"] if view["by"] == "day" else r["group"][5:]  # "12-01 22:03"
@@ -328,6 +382,8 @@ def print_grouped_history(con: Console, view, chart: str) -> None:
                   "-" if change is None else f"{change:+.3f}",
                   "-" if r["n_uncertain"] is None else f"{r['n_uncertain']:,}",
                   fmt_num(r["expected_accuracy"])]
+        if audited:
+            cells.append(audit_cell(r.get("audit")))
         table.add_row(*cells)
     con.print(table)
     minutes = int(SITTING_GAP.total_seconds() // 60)
@@ -337,6 +393,8 @@ def print_grouped_history(con: Console, view, chart: str) -> None:
         f"entropy: mean over unlabelled candidates after the {one}'s last fit, bits",
         f"change: against the previous {one}; uncertain: top p below 0.8",
         "exp. acc.: the model's own estimate; *: hyperparameters relearnt",
+        *(["audit: measured share right on audit items scored so far / their number"]
+          if audited else []),
         f"kappa: - (agreement between {many} is not stored; --by fit has it per fit)",
     ]
     if view["by"] == "session":
@@ -368,3 +426,34 @@ def print_simulation(con: Console, result, chart: str) -> None:
               f"{', '.join(map(str, result['seeds']))}); area under curve = mean accuracy over "
               f"labels 1-{result['budget']}, se its standard error over seeds.", style="dim")
     con.print(chart)
+
+
+def print_audit(con: Console, drawn, doc, snap, plot) -> None:
+    """The `audit` screen: what was drawn, the measured accuracy beside the model's own
+    estimate, the reliability table with the expected calibration error, the caution."""
+    from labelq.review.calibration import ReliabilityBin, render_reliability
+
+    if drawn is not None:
+        con.print(f"Drew {drawn.n:,} audit candidates at random from {drawn.drawn_from:,} "
+                  f"unlabelled (seed {drawn.seed}). `labelq next` and `labelq session` offer "
+                  f"them one in five, marked A, without the model's prediction.", markup=False)
+    if doc is None:
+        con.print("No audit yet: `labelq audit -n 50` draws 50 candidates at random; their "
+                  "labels measure how often the model is right.", markup=False)
+        return
+    con.print(audit_line(doc, snap), markup=False)
+    if doc["unscored"]:
+        con.print(f"{doc['unscored']} audit items were labelled before there was a model, so "
+                  "they train it but measure nothing.", markup=False)
+    if doc["skipped"]:
+        con.print(f"{doc['skipped']} audit items are skipped: label them too, or the audit "
+                  "leaves out the hard cases and reads too high.", markup=False)
+    if doc["n"]:
+        bins = [ReliabilityBin(**b) for b in doc["bins"]]
+        con.print(render_reliability(bins, width=min(80, max(56, con.width))).rstrip(),
+                  markup=False, highlight=False)
+        if doc.get("calibration"):
+            con.print(calibration_warning(doc), markup=False)
+    if plot is not None:
+        con.print(f"Wrote the reliability diagram to {plot}.", markup=False)
+    con.print(CAUTION, style="dim")

@@ -3,8 +3,6 @@ the model work follows (so a crash during a refit never loses a label)."""
 
 from __future__ import annotations
 
-import getpass
-import os
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Optional
@@ -13,17 +11,9 @@ from labelq.ingest import read_candidates
 from labelq.loop import settings
 from labelq.loop.refit import Progress, asked_strategy, ensure_fit
 from labelq.store import Store
-
-
-def default_person() -> str:
-    """Who is labelling: $LABELQ_BY, else the login name."""
-    name = os.environ.get("LABELQ_BY")
-    if name:
-        return name
-    try:
-        return getpass.getuser()
-    except Exception:  # no login name in some containers
-        return "unknown"
+from labelq.store.timestamps import utc_now
+from labelq.loop.people import default_person  # noqa: F401
+from labelq.loop.queue_view import AUDIT_REASON, CLAIM_ATTEMPTS, Queue, QueueRow, meta_columns, row_score  # noqa: F401
 
 
 def create_store(path: Path, classes: list[str]) -> Store:
@@ -95,61 +85,11 @@ def skip(store: Store, key: str, by: str, strategy: Optional[str] = None, sessio
 
 
 def undo(store: Store, by: str, strategy: Optional[str] = None, session_id=None,
-         progress: Progress = None) -> StepResult:
-    """Retract the most recent label or skip (an appended retraction), then refit."""
-    event = store.undo(by)
+         progress: Progress = None, key: Optional[str] = None) -> StepResult:
+    """Retract the most recent label or skip, or with ``key`` that candidate's current label or
+    skip (an appended retraction), then refit."""
+    event = store.undo(by, key=key)
     return StepResult(event, ensure_fit(store, strategy, session_id=session_id, progress=progress))
-
-
-CLAIM_ATTEMPTS = 5
-"""How often `next_queue` re-reads the queue when the head it read was claimed meanwhile."""
-
-
-@dataclass
-class QueueRow:
-    """One candidate in a queue as shown: its rank, class probabilities and the strategy's score."""
-
-    rank: int
-    candidate_id: int
-    key: str
-    predicted: int
-    probabilities: object
-    p_top: float
-    score: float
-    meta: dict
-    skipped: bool
-    reason: Optional[str] = None
-
-
-def row_score(strategy: str, row) -> float:
-    """The number shown in the queue's score column for ``strategy`` (see acquire.display_score)."""
-    if strategy == "entropy":
-        return row.entropy
-    if strategy == "margin":
-        return row.margin
-    if strategy == "bald":
-        return row.bald
-    return row.priority
-
-
-def meta_columns(rows) -> list[str]:
-    """Metadata column names in first-seen order across ``rows``."""
-    seen: dict[str, None] = {}
-    for row in rows:
-        seen.update(dict.fromkeys(row.meta))
-    return list(seen)
-
-
-@dataclass
-class Queue:
-    """The head of the queue as shown to one person."""
-
-    rows: list
-    strategy: str
-    cold_start: bool
-    fit: object
-    held: int = 0  # rows held for other labellers (left out of rows)
-    held_until: Optional[str] = None  # the latest expiry of those holds, UTC
 
 
 def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
@@ -167,15 +107,39 @@ def next_queue(store: Store, n: int = 10, strategy: Optional[str] = None,
     cold = bool((fit.info or {}).get("cold_start"))
     skipped = set(store.skipped_ids().tolist())
     for _ in range(CLAIM_ATTEMPTS):
-        found = store.queue(n, holder=holder)
+        rows = _queue_rows(store, n, holder, shown, cold, skipped)
         # The claim is its own write transaction: when another person claimed the same head
         # between our read and our claim, read the queue again (it now leaves theirs out).
-        if not (holder and found) or store.claim([found[0].candidate_id], holder,
-                                                 seconds=settings.CLAIM_SECONDS):
+        if not (holder and rows) or store.claim([rows[0].candidate_id], holder,
+                                                seconds=settings.CLAIM_SECONDS):
             break
-    rows = [QueueRow(r.rank, r.candidate_id, r.key, r.predicted, r.probabilities, r.p_top,
-                     0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped,
-                     r.reason)
-            for r in found]
     held, until = store.held_by_others(holder)
     return Queue(rows, shown, cold, fit, held, until)
+
+
+def _queue_rows(store: Store, n: int, holder, shown: str, cold: bool, skipped: set) -> list:
+    """The first ``n`` rows as offered: the ranked queue with, while an audit has items waiting
+    and the model can predict, one audit item in every `settings.AUDIT_EVERY` rows (counting the
+    labels already given since the audit was drawn). An audit row shows no prediction, so the
+    labeller is not led by the model it is testing."""
+    pending = [] if cold else store.pending_audit(holder, utc_now())
+    audit_ids = {cid for cid, _, _ in pending}
+    found = store.queue(n + len(audit_ids), holder=holder)
+    ranked = [QueueRow(r.rank, r.candidate_id, r.key, r.predicted, r.probabilities, r.p_top,
+                       0.0 if cold else row_score(shown, r), r.meta, r.candidate_id in skipped,
+                       r.reason)
+              for r in found if r.candidate_id not in audit_ids]
+    if not pending:
+        return ranked[:n]
+    audits = [QueueRow(0, cid, key, None, None, None, None, meta, cid in skipped, AUDIT_REASON,
+                       audit=True) for cid, key, meta in pending]
+    done, others = store.audit_pace()
+    rows = []
+    while len(rows) < n and (audits or ranked):
+        if audits and (not ranked or done * (settings.AUDIT_EVERY - 1) <= others):
+            rows.append(audits.pop(0))
+            done += 1
+        else:
+            rows.append(ranked.pop(0))
+            others += 1
+    return rows

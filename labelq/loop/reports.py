@@ -19,7 +19,7 @@ from labelq import gp, review  # engine parts load on first use (labelq.lazy), n
 from labelq.errors import LabelqError
 from labelq.gp.persistence import with_input_scaling
 from labelq.ingest import read_candidates
-from labelq.loop import settings
+from labelq.loop import audit, settings
 from labelq.loop.refit import ensure_fit, is_current
 from labelq.review.advice import stopping_advice
 from labelq.review.chart import render_chart
@@ -90,6 +90,11 @@ def _learning_fits(store):
     return [f for f in store.fits() if not (f.info or {}).get("reused")]
 
 
+CAUTION = ("Probabilities are the model's estimates from the labels given so far; an audit "
+           "(`labelq audit`) measures how often they are right. Where a decision bears on food "
+           "safety or health, follow local rules and licensed practice, not this model alone.")
+
+
 def status(store) -> dict:
     """Counts, the last fit, the latest snapshot and the stopping advice (status --json)."""
     counts = store.counts()
@@ -97,7 +102,9 @@ def status(store) -> dict:
     snaps = {s["fit_id"]: s for s in store.snapshots()}
     kappas = [snaps.get(f.id, {}).get("agreement_kappa") for f in _learning_fits(store)
               if f.strategy != "cold-start"]
-    advice = stopping_advice(kappas, per_class)
+    audit_doc = audit.report(store)
+    advice = stopping_advice(kappas, per_class, audit=audit_doc,
+                             half_width=settings.AUDIT_HALF_WIDTH)
     last = store.last_fit()
     snap = snaps.get(last.id) if last is not None else None
     learnt = relearns(history(store))
@@ -114,7 +121,8 @@ def status(store) -> dict:
         "last_relearn": learnt[-1] if learnt else None,
         "advice": {"stop": advice.stop, "message": advice.message, "figures": advice.figures,
                    "flagged_classes": advice.flagged_classes},
-        "caution": "Probabilities are the model's estimates from the labels given so far.",
+        "audit": audit_doc,
+        "caution": CAUTION,
     }
 
 
@@ -130,7 +138,17 @@ def history(store) -> list[dict]:
     """One row per fit (history --json contract), with how its hyperparameters were set
     (``hyper_mode``), whether this fit learnt them (``relearnt``) and, where it did, the change in
     the model's expected accuracy against the fit before (``accuracy_change``)."""
-    return _fit_rows(store.fits(), store.snapshots())
+    fits = store.fits()
+    return _with_audit(store, _fit_rows(fits, store.snapshots()), fits)
+
+
+def _with_audit(store, rows, fits) -> list[dict]:
+    """Each history row with ``audit``: the audit's n, accuracy, Wilson interval and the model's
+    own estimate for the same items, as they stood at the row's fit (None without an audit)."""
+    mark_of = {f.id: f.event_mark for f in fits}
+    for row, doc in zip(rows, audit.as_of_marks(store, [mark_of.get(r["fit"], -1) for r in rows])):
+        row["audit"] = doc
+    return rows
 
 
 def _fit_rows(fits, snapshots) -> list[dict]:
@@ -202,7 +220,7 @@ def history_view(store, by: Optional[str] = None, zone=None) -> dict:
         days = calendar_days([parse_utc(e["at"]) for e in events], zone)
         by = "day" if len(days) > 1 else "fit"
     fits = store.fits()
-    fit_rows = _fit_rows(fits, store.snapshots())
+    fit_rows = _with_audit(store, _fit_rows(fits, store.snapshots()), fits)
     rows = (fit_rows if by == "fit" else
             history_groups(events, fits, fit_rows, by, zone))
     return {"by": by, "time_zone": zone_label(zone), "rows": rows}
@@ -264,6 +282,7 @@ def history_groups(events, fits, fit_rows, by: str, zone) -> list[dict]:
             "n_uncertain": last["n_uncertain"] if last else None,
             "expected_accuracy": last["expected_accuracy"] if last else None,
             "relearnt": any(r["relearnt"] for r in members),
+            "audit": last["audit"] if last else None,
             "fits": [r["fit"] for r in members],
         })
         before = entropy if entropy is not None else before
@@ -341,7 +360,9 @@ def _model(fit):
 
 
 def candidate_view(store, key: str) -> dict:
-    """One candidate: metadata, raw features, p per class with a 5-95% interval, nearest labelled."""
+    """One candidate: metadata, raw features, p per class with a 5-95% interval, nearest labelled;
+    its current label's ``by``, ``at`` (UTC) and ``note`` (None when unlabelled), and
+    ``history``: its label and skip events oldest first (Store.item_history)."""
     rec = store.candidate(key)
     fit = ensure_fit(store)
     view = {"key": rec.key, "meta": rec.meta, "features": rec.features, "label": rec.label,
@@ -360,6 +381,9 @@ def candidate_view(store, key: str) -> dict:
             lo, hi = gp.probability_interval(m, v, np.array([k]), clf.likelihood_)
             view["p"][c] = {"p": float(proba[k]), "low": float(lo[0]), "high": float(hi[0])}
     labels = store.current_labels()
+    mine = next((r for r in labels if r.candidate_id == rec.id), None)
+    view["by"], view["at"], view["note"] = (mine.by, mine.at, mine.note) if mine else (None,) * 3
+    view["history"] = store.item_history(rec.key)
     if labels:
         ids = np.array([r.candidate_id for r in labels], dtype=np.int64)
         X = (store.features(ids) - mean_) / scale
@@ -394,9 +418,9 @@ def export(store, what: str, as_json: bool = False) -> str:
 
 def _predictions_text(store, as_json: bool) -> str:
     classes = store.classes
-    labelled = {r.candidate_id for r in store.current_labels()}
+    given = {r.candidate_id: r.class_ for r in store.current_labels()}
     columns = ["key", "predicted"] + [f"p_{c}" for c in classes] + ["p_low", "p_high", "entropy",
-                                                                     "labelled"]
+                                                                     "labelled", "label"]
     rows, meta_cols = [], []
     for chunk in store.scores():
         keys = store.keys(chunk.candidate_id)
@@ -408,7 +432,8 @@ def _predictions_text(store, as_json: bool) -> str:
             row["p_low"] = round(float(chunk.p_low[i]), 6)
             row["p_high"] = round(float(chunk.p_high[i]), 6)
             row["entropy"] = round(float(chunk.entropy[i]), 6)
-            row["labelled"] = int(int(cid) in labelled)
+            row["labelled"] = int(int(cid) in given)
+            row["label"] = given.get(int(cid))  # the labeller's class; empty in CSV, null in JSON
             for k, v in metas[i].items():
                 if k not in meta_cols:
                     meta_cols.append(k)

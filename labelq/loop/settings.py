@@ -24,6 +24,16 @@ KEEP_MODELS = 20
 UNCERTAIN_BELOW = 0.8
 """A candidate whose top class probability is below this counts as uncertain in snapshots."""
 
+AUDIT_EVERY = 5
+"""While an audit has items waiting, one row in this many of the queue is an audit item."""
+
+AUDIT_BINS_SMALL, AUDIT_BINS = 5, 10
+"""Reliability bins for audits of fewer than 100 scored items, and from 100 on."""
+
+AUDIT_HALF_WIDTH = 0.05
+"""Stopping advice quotes a measured accuracy only when the audit's 95% interval is at most this
+wide on each side (common practice for a quoted proportion; e.g. +-5 points)."""
+
 CLAIM_SECONDS = 300
 """How long the head of a queue shown to one person is held back from another."""
 

@@ -80,7 +80,7 @@ def score_pool(model, X, settings: PolicySettings, strategy: str, unlabelled: np
     link = model.likelihood_
     entropy = entropy_bits(proba)
     # p1 - p2 for every number of classes. For two classes the spread-scaled distance
-    # |mean| / sqrt(1 + var) (Kapoor et al. 2007; labelq.acquire.margin with a latent) was tried
+    # |mean| / sqrt(1 + var) (Kapoor et al. 2007; labelq.acquire.margins with a latent) was tried
     # as the priority: it trailed random on the statsmodels affairs survey (area 0.650 against
     # 0.667, 10 seeds) where p1 - p2 reached 0.665, and tied it elsewhere (bench_labels.py).
     marg = margin(proba)

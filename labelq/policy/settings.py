@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, fields, replace
 
-from labelq.acquire import STRATEGIES
+from labelq.acquire.names import STRATEGIES
 COLD_STARTS = ("typical", "farthest")
 
 

@@ -7,6 +7,7 @@ examples with Cohen's kappa and stops once agreement stays high (window of 3, th
 """
 
 from dataclasses import dataclass, field
+import math
 from typing import Mapping, Optional, Sequence
 
 
@@ -45,6 +46,8 @@ def stopping_advice(
     threshold: float = 0.99,
     window: int = 3,
     min_labels_per_class: int = 3,
+    audit: Optional[Mapping] = None,
+    half_width: float = 0.05,
 ) -> Advice:
     """Advise whether to stop labelling (Bloodgood & Vijay-Shanker 2009, stabilizing predictions).
 
@@ -60,6 +63,12 @@ def stopping_advice(
         cautious and cannot be met by one very high value hiding a low one.
     min_labels_per_class : classes with fewer labels are flagged, and stopping is never advised
         while any class is flagged (common practice, no published source).
+    audit : mapping with ``n``, ``accuracy``, ``low``, ``high`` (labelq.loop.audit.report), or
+        None. With an audit, stopping is advised only when, besides stable predictions, the
+        audit's interval is at most ``half_width`` on each side of its accuracy, so the accuracy
+        the advice quotes is supported; the advice then says how many more audit items would
+        make it so (n = z^2 p (1 - p) / h^2, the normal-approximation sample size; common
+        practice). Without one, the advice says its figures are the model's own.
 
     Returns
     -------
@@ -91,15 +100,47 @@ def stopping_advice(
                         f"{threshold:g} for {window} fits in a row, {min(run, window)} so far")
 
     state = "stable" if stable else "not stable yet"
+    audited = audit is not None and audit.get("n")
+    supported = False
+    if audited:
+        acc, low, high, n_audit = audit["accuracy"], audit["low"], audit["high"], audit["n"]
+        widest = max(acc - low, high - acc)
+        supported = widest <= half_width
+        figures["audit_half_width"] = widest
+        measured = (f"the audit measured accuracy {acc:.2f} (95% interval {low:.2f}-{high:.2f}, "
+                    f"{n_audit} items)")
+        if supported:
+            audit_text = f"; {measured}"
+        else:
+            p = min(max(acc, 0.05), 0.95)
+            needed = int(math.ceil(1.96 ** 2 * p * (1 - p) / half_width ** 2))
+            more = max(needed - n_audit, 1)
+            waiting = int(audit.get("pending") or 0)
+            figures["audit_items_needed"] = more
+            if waiting >= more:
+                todo = f"label about {more} of the {waiting} audit items waiting"
+            elif waiting:
+                todo = (f"label the {waiting} audit items waiting and about {more - waiting} "
+                        f"more (`labelq audit -n {more - waiting}`)")
+            else:
+                todo = f"label about {more} more audit items (`labelq audit -n {more}`)"
+            audit_text = f"; {measured}, too wide to quote within +-{half_width:.2f}: {todo}"
+    else:
+        audit_text = ("; these figures are the model's own estimate - draw an audit "
+                      "(`labelq audit -n 50`) to measure its accuracy")
+    stop = stable and not flagged and (supported or not audited)
     if flagged:
         message = (f"{_flag_sentence(flagged, label_counts, min_labels_per_class)}. "
-                   f"By the model's own estimate its predictions are {state} ({figures_text}).")
+                   f"By the model's own estimate its predictions are {state} ({figures_text})"
+                   f"{audit_text}.")
+    elif stable and audited and not supported:
+        message = ("Keep labelling audit items: the predictions are stable "
+                   f"({figures_text}){audit_text}.")
     elif stable:
-        message = ("By the model's own estimate, more labels are unlikely to change its "
-                   f"predictions ({figures_text}). "
-                   "Stop when it suits you, or spot-check a few candidates first.")
+        message = ("More labels are unlikely to change the model's predictions "
+                   f"({figures_text}){audit_text}. "
+                   "Stop when it suits you.")
     else:
         message = ("Keep labelling: by the model's own estimate its predictions are "
-                   f"{state} ({figures_text}).")
-    return Advice(stop=stable and not flagged, message=message, figures=figures,
-                  flagged_classes=flagged)
+                   f"{state} ({figures_text}){audit_text}.")
+    return Advice(stop=stop, message=message, figures=figures, flagged_classes=flagged)

@@ -105,3 +105,20 @@ def _panels_figure(panels, title: str, x_label: str):
     axes[0].set_title(title)
     axes[-1].set_xlabel(x_label)
     return fig, axes
+
+
+def agg_figure(width_px: int, height_px: int, dpi: int = 100):
+    """A matplotlib Figure of exactly ``width_px`` x ``height_px`` pixels when saved at ``dpi``,
+    drawn on its own Agg canvas (no display, no pyplot state). Raises PlotUnavailableError when
+    matplotlib cannot be imported."""
+    try:
+        import matplotlib  # noqa: F401  (import the package first so a blocked install is caught)
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+    except ImportError:
+        raise PlotUnavailableError(
+            "plotting needs matplotlib: pip install 'labelq[plot]'"
+        ) from None
+    fig = Figure(figsize=(width_px / dpi, height_px / dpi), dpi=dpi)
+    FigureCanvasAgg(fig)
+    return fig

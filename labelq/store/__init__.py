@@ -20,8 +20,15 @@ from labelq.store.errors import (
     UnknownKeyError,
     UnknownSessionError,
 )
-from labelq.store.records import CandidateRecord, FitRecord, LabelRecord, ScoreChunk, ScoreRow, UndoRecord
-from labelq.store.store import Store
+from labelq.lazy import lazy_exports
+
+_WHERE = {
+    **dict.fromkeys(["CandidateRecord", "FitRecord", "LabelRecord", "ScoreChunk", "ScoreRow",
+                     "UndoRecord"], "labelq.store.records"),
+    "Store": "labelq.store.store",
+}
+"""Imported on first use (labelq.lazy): SQLAlchemy costs about half a second to import, and the
+quick read path (`labelq.store.quick`) and `labelq --version` need none of it."""
 
 __all__ = [
     "AlreadyLabelledError",
@@ -46,3 +53,5 @@ __all__ = [
     "UnknownKeyError",
     "UnknownSessionError",
 ]
+
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE)

@@ -6,6 +6,7 @@ from typing import Optional
 from sqlalchemy import bindparam, text
 
 from labelq.store.core import StoreCore
+from labelq.store.sql import CLAIM, DROP_EXPIRED_CLAIMS, HELD_BY_OTHERS
 from labelq.store.timestamps import utc_after, utc_now
 
 
@@ -23,13 +24,9 @@ class ClaimsMixin(StoreCore):
             return []
         now = utc_now()
         with self._write() as connection:
-            connection.execute(text("DELETE FROM claims WHERE expires_at <= :now"), {"now": now})
+            connection.execute(text(DROP_EXPIRED_CLAIMS), {"now": now})
             connection.execute(
-                text(
-                    "INSERT INTO claims (candidate_id, holder, expires_at) VALUES (:cid, :holder, :until)"
-                    " ON CONFLICT (candidate_id) DO UPDATE SET expires_at = excluded.expires_at"
-                    " WHERE claims.holder = excluded.holder"
-                ),
+                text(CLAIM),
                 [{"cid": cid, "holder": holder, "until": utc_after(seconds)} for cid in ids],
             )
             held = connection.execute(
@@ -60,8 +57,7 @@ class ClaimsMixin(StoreCore):
         among them as UTC text, or None)."""
         with self._read() as connection:
             count, until = connection.execute(
-                text("SELECT COUNT(*), MAX(expires_at) FROM claims WHERE expires_at > :now"
-                     " AND (:holder IS NULL OR holder <> :holder)"),
+                text(HELD_BY_OTHERS),
                 {"now": utc_now(), "holder": holder},
             ).one()
         return int(count), until

@@ -14,23 +14,7 @@ from sqlalchemy import Connection, Engine, text
 
 from labelq.store.engine import driver, reading, writing
 from labelq.store.errors import UnknownKeyError
-
-LIVE_LABEL = (
-    "+l.retracts_id IS NULL" " AND NOT EXISTS (SELECT 1 FROM label_events r WHERE r.retracts_id = l.id)"
-)
-"""SQL condition on ``label_events l``: the event is a label and has not been retracted."""
-
-LIVE_SKIP = (
-    "+s.retracts_id IS NULL" " AND NOT EXISTS (SELECT 1 FROM skip_events r WHERE r.retracts_id = s.id)"
-)
-"""SQL condition on ``skip_events s``: the event is a skip and has not been retracted.
-
-The unary ``+`` in both conditions keeps SQLite from answering ``retracts_id IS NULL`` with the
-retracts_id index (which matches nearly every row) instead of the candidate_id index.
-"""
-
-CURRENT_LABEL_IDS = f"SELECT MAX(l.id) FROM label_events l WHERE {LIVE_LABEL} GROUP BY l.candidate_id"
-"""SQL yielding the id of every candidate's current label event."""
+from labelq.store.sql import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP  # noqa: F401 (re-exported)
 
 _ID_CHUNK = 5000
 

@@ -57,3 +57,7 @@ class AlreadyLabelledError(LabelqError):
 
 class NothingToUndoError(LabelqError):
     """There is no label or skip left to retract."""
+
+
+class AuditError(LabelqError):
+    """An audit cannot be drawn as asked (too few unlabelled candidates, no model yet, ...)."""

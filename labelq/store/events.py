@@ -1,13 +1,16 @@
-"""Labels and skips as append-only events; undo appends a retraction of the latest live event."""
+"""Labels and skips as append-only events; undo appends a retraction of the latest live event (or of
+one candidate's current label or skip)."""
 
 from typing import Any, Optional
 
 import numpy as np
 from sqlalchemy import Connection, text
 
+from labelq.store.audits import record_prediction
 from labelq.store.core import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP, StoreCore, candidate_id, class_names
 from labelq.store.engine import bump_event_mark
-from labelq.store.errors import AlreadyLabelledError, NothingToUndoError, UnknownClassError
+from labelq.store.classes import resolve_class
+from labelq.store.errors import AlreadyLabelledError, NothingToUndoError
 from labelq.store.records import LabelRecord, UndoRecord
 from labelq.store.timestamps import utc_now
 
@@ -35,17 +38,19 @@ class EventsMixin(StoreCore):
     def label(self, key: str, class_: str, by: str, note: Optional[str] = None, relabel: bool = False) -> int:
         """Label candidate ``key`` as ``class_``; the new event id.
 
-        A labelled candidate raises AlreadyLabelledError unless ``relabel``, when the new event
-        supersedes the old one (an undo brings the old one back). A skip of the candidate is retracted.
+        ``class_`` is matched by labelq.store.classes.resolve_class (exact name, then case-insensitive,
+        then its number 1..C) and the stored name is recorded. A labelled candidate raises
+        AlreadyLabelledError unless ``relabel``, when the new event supersedes the old one (an undo
+        brings the old one back). A skip of the candidate is retracted.
         """
         with self._write() as connection:
             cid = candidate_id(connection, key)
-            classes = class_names(connection)
-            if class_ not in classes:
-                raise UnknownClassError(f"unknown class {class_!r} (classes: {', '.join(classes)})")
+            class_ = resolve_class(class_, class_names(connection))
             current = _current_class(connection, cid)
             if current is not None and not relabel:
-                raise AlreadyLabelledError(f"candidate {key!r} is already labelled {current!r}")
+                raise AlreadyLabelledError(
+                    f"candidate {key!r} is already labelled {current!r}; use --relabel to replace the label"
+                )
             mark = bump_event_mark(connection)
             at = utc_now()
             event_id = connection.execute(
@@ -58,6 +63,7 @@ class EventsMixin(StoreCore):
             skip_id = _live_skip(connection, cid)
             if skip_id is not None:
                 _retract(connection, "skip_events", skip_id, cid, by, at, mark)
+            record_prediction(connection, cid, mark)  # audit items: the prediction before the label
         return event_id
 
     def skip(self, key: str, by: str) -> int:
@@ -89,31 +95,42 @@ class EventsMixin(StoreCore):
                 connection, "skip_events", skip_id, cid, by, utc_now(), bump_event_mark(connection)
             )
 
-    def undo(self, by: str) -> UndoRecord:
+    def undo(self, by: str, key: Optional[str] = None) -> UndoRecord:
         """Retract the most recent live label or skip; NothingToUndoError if none is left.
 
-        Undoing a relabel brings back the label it superseded. Undoing a label that un-skipped a
-        candidate leaves it unlabelled and not skipped.
+        With ``key``, retract that candidate's current label (its latest live label event), else
+        its live skip; NothingToUndoError naming the key if it has neither (UnknownKeyError if
+        there is no such candidate). Undoing a relabel brings back the label it superseded.
+        Undoing a label that un-skipped a candidate leaves it unlabelled and not skipped.
         """
         with self._write() as connection:
+            only = "" if key is None else " AND {0}.candidate_id = :cid"
+            params = {} if key is None else {"cid": candidate_id(connection, key)}
             latest = [
                 connection.execute(
                     text(
                         f"SELECT l.mark, 'label', l.id, l.candidate_id, l.class FROM label_events l"
-                        f" WHERE {LIVE_LABEL} ORDER BY l.id DESC LIMIT 1"
-                    )
+                        f" WHERE {LIVE_LABEL}{only.format('l')} ORDER BY l.id DESC LIMIT 1"
+                    ),
+                    params,
                 ).first(),
                 connection.execute(
                     text(
                         f"SELECT s.mark, 'skip', s.id, s.candidate_id, NULL FROM skip_events s"
-                        f" WHERE {LIVE_SKIP} ORDER BY s.id DESC LIMIT 1"
-                    )
+                        f" WHERE {LIVE_SKIP}{only.format('s')} ORDER BY s.id DESC LIMIT 1"
+                    ),
+                    params,
                 ).first(),
             ]
             found = [row for row in latest if row is not None]
             if not found:
-                raise NothingToUndoError("nothing to undo: no label or skip left to retract")
-            _, kind, event_id, cid, class_ = max(found, key=lambda row: row[0])
+                raise NothingToUndoError(
+                    "nothing to undo: no label or skip left to retract"
+                    if key is None
+                    else f"nothing to undo for candidate {key!r}: it has no label or skip"
+                )
+            # with a key, its label before its skip (a candidate never has both live at once)
+            _, kind, event_id, cid, class_ = found[0] if key is not None else max(found, key=lambda row: row[0])
             table = "label_events" if kind == "label" else "skip_events"
             _retract(connection, table, event_id, cid, by, utc_now(), bump_event_mark(connection))
             key = connection.execute(

@@ -9,11 +9,12 @@ import numpy as np
 from sqlalchemy import Connection, Row, insert, select, text
 
 from labelq.store.blobs import decode_rows, row_blobs
-from labelq.store.core import LIVE_LABEL, StoreCore, class_names, in_given_order, rows_by_id
+from labelq.store.core import StoreCore, class_names, in_given_order, rows_by_id
 from labelq.store.engine import driver
 from labelq.store.errors import UnknownSessionError
 from labelq.store.models import Fit, Snapshot
 from labelq.store.records import FitRecord, ScoreChunk, ScoreRow
+from labelq.store.sql import LAST_FIT, queue_sql
 from labelq.store.timestamps import utc_now
 
 _INSERT_SCORE = (
@@ -25,9 +26,7 @@ _SCORE_COLUMNS = (
 )
 _WRITE_CHUNK = 50_000
 """Score rows handed to one executemany call."""
-_LAST_FIT = "(SELECT MAX(id) FROM fits)"
-"""SQL for the id of the last fit. Only its scores are kept, so full reads filter on ``+fit_id``
-(the ``+`` bars the fit_id index) and walk the rank or primary-key index instead of sorting."""
+_LAST_FIT = LAST_FIT
 _LAST_FIT_SCORES = f"FROM scores WHERE fit_id = {_LAST_FIT} AND candidate_id IN ({{ids}})"
 
 
@@ -178,21 +177,7 @@ class FitsMixin(StoreCore):
         Candidates labelled since the fit are left out; with ``exclude_claimed``, so are candidates
         whose unexpired claim belongs to someone other than ``holder``.
         """
-        claimed = (
-            " AND NOT EXISTS (SELECT 1 FROM claims k WHERE k.candidate_id = sc.candidate_id"
-            " AND k.expires_at > :now AND (:holder IS NULL OR k.holder <> :holder))"
-            if exclude_claimed
-            else ""
-        )
-        sql = (
-            "SELECT sc.candidate_id, c.key, c.meta, sc.probabilities, sc.predicted, sc.p_top, sc.entropy,"
-            " sc.margin, sc.bald, sc.priority, sc.rank, sc.reason"
-            " FROM scores sc JOIN candidates c ON c.id = sc.candidate_id"
-            f" WHERE +sc.fit_id = {_LAST_FIT} AND sc.rank IS NOT NULL"
-            " AND NOT EXISTS (SELECT 1 FROM label_events l"
-            f" WHERE l.candidate_id = sc.candidate_id AND {LIVE_LABEL})"
-            f"{claimed} ORDER BY sc.rank LIMIT :limit OFFSET :offset"
-        )
+        sql = queue_sql(exclude_claimed)
         with self._read() as connection:
             n_classes = len(class_names(connection))
             rows = connection.execute(

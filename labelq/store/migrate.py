@@ -15,16 +15,18 @@ SQL query.
 import re
 from functools import lru_cache
 from pathlib import Path
-
-from sqlalchemy import Connection, text
+from typing import TYPE_CHECKING
 
 import labelq.migrations
+
+if TYPE_CHECKING:
+    from sqlalchemy import Connection
 
 SCRIPT_LOCATION = Path(labelq.migrations.__file__).parent
 _ASSIGNMENT = re.compile(r'^(revision|down_revision)\s*=\s*"([^"]+)"', re.M)
 
 
-def alembic_config(connection: Connection | None = None):
+def alembic_config(connection: "Connection | None" = None):
     """An Alembic config pointing at the packaged revisions; ``connection`` is used by env.py."""
     from alembic.config import Config
 
@@ -60,8 +62,10 @@ def known_revisions() -> frozenset[str]:
     return frozenset(_graph())
 
 
-def current_revision(connection: Connection) -> str | None:
+def current_revision(connection: "Connection") -> str | None:
     """The revision stamped in the database, or None if it was never stamped."""
+    from sqlalchemy import text  # here, not at the top: `labelq --version` needs no SQLAlchemy
+
     has_table = connection.execute(text(
         "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'alembic_version'")).first()
     if has_table is None:
@@ -69,7 +73,7 @@ def current_revision(connection: Connection) -> str | None:
     return connection.execute(text("SELECT version_num FROM alembic_version")).scalar()
 
 
-def upgrade(connection: Connection, revision: str = "head") -> None:
+def upgrade(connection: "Connection", revision: str = "head") -> None:
     """Apply the revisions up to ``revision`` inside the caller's open transaction."""
     from alembic import command
 

@@ -29,8 +29,7 @@ NAMING_CONVENTION = {
     "pk": "pk_%(table_name)s",
 }
 
-APPLICATION = "labelq"
-"""Value of ``store_info.application`` that marks an SQLite file as a labelq store."""
+from labelq.store.sql import APPLICATION  # noqa: E402,F401 (re-exported)
 
 
 class Base(DeclarativeBase):
@@ -195,3 +194,37 @@ class Claim(Base):
     candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), primary_key=True)
     holder: Mapped[str] = mapped_column(String)
     expires_at: Mapped[str] = mapped_column(String)
+
+
+class Audit(Base):
+    """A seeded, uniformly random sample of the unlabelled candidates, drawn to measure accuracy."""
+
+    __tablename__ = "audits"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    by: Mapped[str] = mapped_column(String)
+    at: Mapped[str] = mapped_column(String)
+    seed: Mapped[int] = mapped_column(Integer)
+    opened_mark: Mapped[int] = mapped_column(Integer)
+    """The store's event mark when the sample was drawn (labels after it count for interleaving)."""
+    drawn_from: Mapped[int] = mapped_column(Integer)
+    """How many unlabelled candidates the sample was drawn from."""
+
+
+class AuditItem(Base):
+    """One audit candidate and, once labelled, the prediction made for it before its first label."""
+
+    __tablename__ = "audit_items"
+
+    candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), primary_key=True)
+    audit_id: Mapped[int] = mapped_column(ForeignKey("audits.id"), index=True)
+    position: Mapped[int] = mapped_column(Integer)
+    """Order within the sample (the order items are offered in)."""
+    fit_id: Mapped[Optional[int]] = mapped_column(Integer)
+    """The fit whose prediction was recorded (None: not labelled yet, or no model then)."""
+    predicted: Mapped[Optional[int]] = mapped_column(Integer)
+    p_top: Mapped[Optional[float]] = mapped_column(Float)
+    probabilities: Mapped[Optional[bytes]] = mapped_column(LargeBinary)
+    scored_mark: Mapped[Optional[int]] = mapped_column(Integer)
+    """Event mark of the first label of the item (when the prediction was recorded)."""
+

@@ -10,6 +10,7 @@ import numpy as np
 from sqlalchemy import Connection, text
 
 from labelq.store.blobs import decode_rows, row_blobs
+from labelq.store.classes import resolve_class
 from labelq.store.core import feature_names as stored_feature_names
 from labelq.store.core import (
     CURRENT_LABEL_IDS,
@@ -26,7 +27,6 @@ from labelq.store.errors import (
     DuplicateKeyError,
     FeatureMismatchError,
     UnknownCandidateError,
-    UnknownClassError,
 )
 from labelq.store.records import CandidateRecord
 from labelq.store.timestamps import utc_now
@@ -75,7 +75,7 @@ class PoolMixin(StoreCore):
         with self._write() as connection:
             _ensure_schema(connection, list(feature_names))
             if labels is not None:
-                _validate_labels(connection, labels)
+                labels = _resolve_labels(connection, labels)
             first_id = (
                 1 + connection.execute(text("SELECT COALESCE(MAX(id), 0) FROM candidates")).scalar_one()
             )
@@ -214,11 +214,17 @@ def _validate_import(
         seen.add(key)
 
 
-def _validate_labels(connection: Connection, labels: Sequence[Optional[str]]) -> None:
+def _resolve_labels(connection: Connection, labels: Sequence[Optional[str]]) -> list[Optional[str]]:
+    """Each given label as its stored class name (any case, or the class's number; see
+    labelq.store.classes); UnknownClassError with a did-you-mean for the first that names none."""
     classes = class_names(connection)
-    unknown = next((label for label in labels if label is not None and label not in classes), None)
-    if unknown is not None:
-        raise UnknownClassError(f"unknown class {unknown!r} (classes: {', '.join(classes)})")
+    found: dict[str, str] = {}
+    out = []
+    for label in labels:
+        if label is not None and label not in found:
+            found[label] = resolve_class(label, classes)
+        out.append(None if label is None else found[label])
+    return out
 
 
 def _ensure_schema(connection: Connection, names: list[str]) -> None:

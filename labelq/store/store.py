@@ -10,6 +10,7 @@ from typing import Optional, Union
 
 from sqlalchemy import text
 
+from labelq.store.audits import AuditsMixin
 from labelq.store.check import CheckMixin
 from labelq.store.claims import ClaimsMixin
 from labelq.store.core import class_names
@@ -24,6 +25,7 @@ from labelq.store.errors import (
 )
 from labelq.store.events import EventsMixin
 from labelq.store.fits import FitsMixin
+from labelq.store.history import ItemHistoryMixin
 from labelq.store.migrate import current_revision, head_revision, known_revisions, upgrade
 from labelq.store.models import APPLICATION
 from labelq.store.pool import PoolMixin
@@ -32,7 +34,8 @@ from labelq.store.sessions import SessionsMixin
 _SQLITE_HEADER = b"SQLite format 3\x00"
 
 
-class Store(PoolMixin, EventsMixin, SessionsMixin, FitsMixin, ClaimsMixin, CheckMixin):
+class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, ClaimsMixin, AuditsMixin,
+            CheckMixin):
     """A labelq store; use :meth:`create` or :meth:`open`, and close it (or use ``with``)."""
 
     @classmethod

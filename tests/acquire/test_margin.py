@@ -1,4 +1,4 @@
-"""Tests for labelq.acquire.margin."""
+"""Tests for labelq.acquire.margins."""
 
 import numpy as np
 import pytest

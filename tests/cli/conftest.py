@@ -18,7 +18,7 @@ from typer.testing import CliRunner
 from labelq.cli.app import app
 
 TABLES = ("candidates", "feature_schema", "classes", "label_events", "skip_events", "sessions",
-          "fits", "scores", "snapshots", "claims")
+          "fits", "scores", "snapshots", "claims", "audits", "audit_items")
 
 
 def write_csv(path: Path, header, rows) -> Path:

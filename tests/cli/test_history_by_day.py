@@ -17,7 +17,7 @@ import pytest
 from labelq.cli.app import app
 
 GROUP_KEYS = {"group", "by", "start", "end", "labels_given", "labels_total", "mean_entropy",
-              "entropy_change", "n_uncertain", "expected_accuracy", "relearnt", "fits"}
+              "entropy_change", "n_uncertain", "expected_accuracy", "relearnt", "fits", "audit"}
 
 
 def at(cli, when, *args, env=None):

@@ -128,8 +128,8 @@ def test_history_and_export_predictions(cancer_store, cancer_csv):
     assert result.exit_code == 0
     table = list(csv.DictReader(io.StringIO(result.stdout)))
     assert len(table) == 200 and len({r["key"] for r in table}) == 200
-    assert list(table[0])[:9] == ["key", "predicted", "p_malignant", "p_benign", "p_low",
-                                  "p_high", "entropy", "labelled", "site"]
+    assert list(table[0])[:10] == ["key", "predicted", "p_malignant", "p_benign", "p_low",
+                                   "p_high", "entropy", "labelled", "label", "site"]
     assert sum(int(r["labelled"]) for r in table) == 6
     for r in table:
         assert float(r["p_low"]) <= float(r[f"p_{r['predicted']}"]) <= float(r["p_high"])

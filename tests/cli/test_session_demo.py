@@ -25,7 +25,10 @@ def test_session_through_a_pipe(cancer_store):
     # three labels (by number and by name), a skip, an undo (takes back the skip), then quit
     result = cancer_store("session", "--by", "tester", input="1\nbenign\n2\ns\nu\nq\n")
     assert result.exit_code == 0, result.output
-    assert "Session over: 3 labels, 1 skips, 1 undos" in result.stdout
+    assert "Session over: 3 labels and 0 skips kept (1 undone)" in result.stdout
+    # once per item: labels given in this sitting and which way the pool's uncertainty went
+    assert "1 label this sitting" in result.stdout
+    assert "3 labels this sitting; pool uncertainty" in result.stdout
     status = cancer_store.json("status")
     assert status["labelled"] == 3 and status["skipped"] == 0
     con = sqlite3.connect(cancer_store.db)
@@ -60,3 +63,13 @@ def test_demo_in_an_empty_folder(tmp_path, cli):
     assert live_labels(db) == 8
     again = cli.runner.invoke(app, ["demo", "--dir", str(tmp_path / "demo")])
     assert again.exit_code == 2
+
+
+def test_session_counts_labels_net_of_undos(cancer_store):
+    # two labels, then both taken back: the closing line counts none kept
+    result = cancer_store("session", "--by", "tester", input="1\n2\nu\nu\nq\n")
+    assert result.exit_code == 0, result.output
+    assert "Session over: 0 labels and 0 skips kept (2 undone)" in result.stdout
+    assert "2 labels this sitting" in result.stdout
+    assert live_labels(cancer_store.db) == 0
+

@@ -20,8 +20,9 @@ def test_help_lists_every_command(cli):
     assert result.exit_code == 0
     listed = {line.split()[0] for line in result.output.split("Commands:")[1].splitlines()
               if line.startswith("  ") and line.split()}
-    assert listed == {"init", "import", "next", "show", "label", "skip", "undo", "session",
-                      "status", "history", "export", "simulate", "demo", "check", "rebuild"}
+    assert listed == {"init", "import", "next", "show", "label", "labels", "skip", "undo",
+                      "session", "status", "audit", "history", "export", "simulate", "demo",
+                      "check", "rebuild"}
 
 
 def test_init_then_import(cli, cancer_csv):

@@ -68,3 +68,37 @@ def test_rejects_bad_settings(kwargs):
     """Common practice, no published source."""
     with pytest.raises(ValueError):
         stopping_advice([None], ENOUGH, **kwargs)
+
+
+STABLE = [None, 0.995, 0.999, 1.0]
+
+
+def test_a_narrow_audit_lets_the_advice_quote_a_measured_accuracy():
+    """This project's rule (issue 11): with an audit, stop only when its 95% interval is at most
+    0.05 on each side of the accuracy quoted. 380 of 400 right: Wilson interval 0.924-0.967
+    (statsmodels proportion_confint(380, 400, method="wilson"), computed for this test)."""
+    audit = {"n": 400, "accuracy": 0.95, "low": 0.9240, "high": 0.9674, "pending": 0}
+    advice = stopping_advice(STABLE, ENOUGH, audit=audit)
+    assert advice.stop is True
+    assert "audit measured accuracy 0.95 (95% interval 0.92-0.97, 400 items)" in advice.message
+    assert "model's own estimate" not in advice.message
+
+
+def test_a_wide_audit_blocks_stopping_and_says_how_many_more_items():
+    """Sample size for a half-width h: n = z^2 p (1 - p) / h^2 (normal approximation; common
+    practice): p = 0.8, h = 0.05 -> 1.96^2 * 0.16 / 0.0025 = 245.9, so 246 - 30 = 216 more."""
+    audit = {"n": 30, "accuracy": 0.8, "low": 0.627, "high": 0.905, "pending": 0}
+    advice = stopping_advice(STABLE, ENOUGH, audit=audit)
+    assert advice.stop is False
+    assert advice.figures["audit_items_needed"] == 216
+    assert "labelq audit -n 216" in advice.message
+    waiting = stopping_advice(STABLE, ENOUGH, audit={**audit, "pending": 20})
+    assert "label the 20 audit items waiting and about 196 more" in waiting.message
+
+
+def test_without_an_audit_the_advice_says_its_figures_are_the_models_own():
+    """Issue 11: without an audit the advice says that its figures are the model's own."""
+    for kappas in ([None, 0.5], STABLE):
+        message = stopping_advice(kappas, ENOUGH).message
+        assert "model's own estimate" in message and "labelq audit" in message
+

@@ -21,7 +21,7 @@ from .conftest import CLASSES, FEATURES, table_rows
 
 def test_there_is_exactly_one_head() -> None:
     heads = ScriptDirectory.from_config(alembic_config()).get_heads()
-    assert heads == [head_revision()] == ["0004"]
+    assert heads == [head_revision()] == ["0005"]
 
 
 def test_revisions_build_exactly_the_models(store: Store) -> None:
@@ -69,7 +69,7 @@ def test_open_upgrades_a_first_revision_store_with_its_data(tmp_path: Path) -> N
         assert store.last_fit() is None
         assert store.claim([record.id], "ana") == [record.id]
     with closing(sqlite3.connect(path)) as connection:
-        assert connection.execute("SELECT version_num FROM alembic_version").fetchall() == [("0004",)]
+        assert connection.execute("SELECT version_num FROM alembic_version").fetchall() == [("0005",)]
 
 
 def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:
@@ -118,3 +118,31 @@ def test_revision_ids_read_without_alembic_agree_with_alembic() -> None:
     scripts = ScriptDirectory.from_config(alembic_config())
     assert head_revision() == scripts.get_current_head()
     assert known_revisions() == {s.revision for s in scripts.walk_revisions()}
+
+
+def test_a_store_at_0004_with_data_upgrades_to_the_audit_tables(store: Store) -> None:
+    """Revision 0005 (audits) on a store holding labels, fits and scores: down to 0004 (the audit
+    tables go) and up again in place; every label, skip, fit and score row is kept, and an
+    audit can be drawn afterwards (common practice for schema revisions, STYLE.md)."""
+    from labelq.loop import actions
+
+    from .conftest import orchard
+
+    keys, X, meta = orchard(40)
+    store.add_candidates(keys, X, meta, FEATURES)
+    for key, grade in zip(keys[:4], ["export", "local", "juice", "export"]):
+        actions.label(store, key, grade, "ana")
+    store.skip(keys[5], "ana")
+    engine = store._engine
+    with writing(engine) as connection:
+        command.downgrade(alembic_config(connection), "0004")
+    with closing(sqlite3.connect(store.path)) as connection:
+        tables = {r[0] for r in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+    assert "audits" not in tables and "audit_items" not in tables
+    before = {t: n for t, n in table_rows(store.path).items() if not t.startswith("audit")}
+    with writing(engine) as connection:
+        upgrade(connection, "head")
+    after = table_rows(store.path)
+    assert {t: n for t, n in after.items() if not t.startswith("audit")} == before
+    assert store.draw_audit(5, "ana", seed=1).n == 5
+    assert store.check() == []
