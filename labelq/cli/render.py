@@ -214,7 +214,9 @@ def print_status(con: Console, doc) -> None:
     """The `status` screen: counts, labels per class, last fit, snapshot, advice, caution."""
     con.print(f"[bold]{escape(doc['db'])}[/bold]: {doc['candidates']:,} candidates, "
               f"{doc['labelled']:,} labelled, {doc['skipped']:,} skipped")
-    con.print(key_value_table([(f"labels {c}", n) for c, n in doc["classes"].items()]))
+    con.print(key_value_table([(f"labels {c}", n) for c, n in doc["classes"].items()]
+                              + [(f"labels by {who}", n)
+                                 for who, n in (doc.get("labellers") or {}).items()]))
     fit = doc["last_fit"]
     if fit is None:
         con.print("No fit yet.")
@@ -262,8 +264,10 @@ def audit_line(audit, snap=None) -> str:
     pool = ("" if snap is None else
             f"; for the whole pool it expects {snap['expected_accuracy']:.2f}")
     return (f"Audit (measured): {audit['accuracy']:.2f} right, 95% interval "
-            f"{audit['low']:.2f}-{audit['high']:.2f}, on {audit['n']} random items; the model "
-            f"expected {audit['expected']:.2f} for the same items{pool}{pending}.")
+            f"{audit['low']:.2f}-{audit['high']:.2f}, on {audit['n']} random "
+            f"{'item' if audit['n'] == 1 else 'items'}; the model expected "
+            f"{audit['expected']:.2f} for the same {'item' if audit['n'] == 1 else 'items'}"
+            f"{pool}{pending}.")
 
 
 def calibration_warning(audit) -> str:

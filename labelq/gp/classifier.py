@@ -17,6 +17,7 @@ from labelq.gp.links import BINARY_LINKS, LIKELIHOODS, get_link
 from labelq.gp.persistence import (class_array, load_json, model_from_dict, model_to_dict,
                                    save_json)
 from labelq.gp.posterior import latent_cross_covariance, latent_moments
+from labelq.gp.threads import blas_threads_for
 
 Prediction = namedtuple("Prediction", ["proba", "mean", "var"])
 Prediction.__doc__ = """Pool prediction: proba (n, C), latent mean and var ((n,) binary, (n, C))."""
@@ -91,8 +92,9 @@ class GPClassifier:
     n_restarts : extra seeded random L-BFGS-B starts.
     random_state : seed for restarts and the median-distance subsample.
     max_optimizer_iter : L-BFGS-B iteration limit per start.
-    softmax_points : quasi Monte Carlo points per row for multi-class averaged probabilities
-        (default 2048, error below 1e-3; see labelq.gp.predictive).
+    softmax_points : multi-class averaged probabilities: None (default) for the bounded
+        quadrature (error at most 2e-4 per probability, labelq.gp.predictive.softmax_quadrature),
+        or a number of fixed quasi Monte Carlo points per row.
 
     Fitted attributes: classes_, log_marginal_likelihood_, hyperparameters_ (dict), n_iter_
     (Newton iterations or EP sweeps of the final posterior fit), fit_warnings_ (list of one-line
@@ -211,7 +213,15 @@ class GPClassifier:
         warm_start : start hyperparameters from the previous fit and the mode (or EP sites) from
             the previous values of rows seen before (same row bytes and label), zero elsewhere.
         classes : optional sequence declaring every class, including ones without labels yet.
+
+        BLAS runs on one thread below `threads.BLAS_THREAD_THRESHOLD` training rows (measured
+        faster there; labelq.gp.threads), and as configured above; the caller's limits are
+        restored on return.
         """
+        with blas_threads_for(len(y)):
+            return self._fit(X, y, warm_start, classes)
+
+    def _fit(self, X, y, warm_start, classes):
         X = _as_matrix(X)
         y_list = _label_list(y)
         if len(y_list) == 0:

@@ -59,6 +59,14 @@ def label_counts(store) -> dict:
     return counts
 
 
+def labeller_counts(store) -> dict:
+    """Current labels per labeller, most first (then by name)."""
+    counts: dict = {}
+    for rec in store.current_labels():
+        counts[rec.by] = counts.get(rec.by, 0) + 1
+    return dict(sorted(counts.items(), key=lambda item: (-item[1], item[0])))
+
+
 def _fit_summary(fit) -> Optional[dict]:
     if fit is None:
         return None
@@ -114,6 +122,7 @@ def status(store) -> dict:
         "labelled": counts["labelled"],
         "skipped": counts["skipped"],
         "classes": per_class,
+        "labellers": labeller_counts(store),
         "features": store.feature_names,
         "last_fit": _fit_summary(last),
         "stale": not is_current(store, last),

@@ -255,7 +255,8 @@ def render_reliability(bins: Sequence[ReliabilityBin], width: int = 80) -> str:
                          f"got {width}")
     full = [b for b in bins if b.count]
     total = sum(b.count for b in full)
-    lines = [f"Reliability: {total} items in {len(full)} of {len(bins)} confidence bins"[:width]]
+    items = "item" if total == 1 else "items"
+    lines = [f"Reliability: {total} {items} in {len(full)} of {len(bins)} confidence bins"[:width]]
     if not full:
         return "\n".join(lines + ["(no items)"]) + "\n"
     decimals = 2 if all(round(e, 2) == e for b in bins for e in (b.low, b.high)) else 3

@@ -47,3 +47,48 @@ def cohen_kappa(a, b) -> float:
     p_o = agree / n
     p_e = chance / (n * n)
     return float((p_o - p_e) / (1.0 - p_e))
+
+
+def kappa_interval(a, b, confidence: float = 0.95) -> tuple[float, float, float, float]:
+    """Cohen's kappa between two raters with its large-sample standard error and a normal
+    confidence interval: ``(kappa, se, low, high)``, the interval clipped to [-1, 1].
+
+    The standard error is the non-null asymptotic one of J. L. Fleiss, J. Cohen & B. S. Everitt
+    (1969), "Large sample standard errors of kappa and weighted kappa", Psychological Bulletin
+    72(5), 323-327: with the table of proportions p_ij, margins p_i. and p_.j, chance agreement
+    p_e and kappa k,
+
+        var = (A + B - C) / (n (1 - p_e)^2),
+        A = sum_i p_ii [1 - (p_i. + p_.i)(1 - k)]^2,
+        B = (1 - k)^2 sum_{i != j} p_ij (p_.i + p_j.)^2,
+        C = [k - p_e (1 - k)]^2.
+
+    With p_e == 1 (both raters constant on one class) kappa is 1 by convention and the standard
+    error 0. For fewer than about 30 items the normal interval is rough; it is reported anyway,
+    with n, by the caller.
+    """
+    from statistics import NormalDist
+
+    a = np.asarray(a)
+    b = np.asarray(b)
+    kappa = cohen_kappa(a, b)  # validates the inputs
+    n = a.size
+    _, codes = np.unique(np.concatenate([a, b]), return_inverse=True)
+    codes = codes.reshape(-1)
+    k = int(codes.max()) + 1
+    table = np.zeros((k, k))
+    np.add.at(table, (codes[:n], codes[n:]), 1.0)
+    p = table / n
+    rows, cols = p.sum(axis=1), p.sum(axis=0)
+    p_e = float(rows @ cols)
+    if p_e >= 1.0:
+        return 1.0, 0.0, 1.0, 1.0
+    diag = np.diag(p)
+    A = float(np.sum(diag * (1.0 - (rows + cols) * (1.0 - kappa)) ** 2))
+    off = p.copy()
+    np.fill_diagonal(off, 0.0)
+    B = (1.0 - kappa) ** 2 * float(np.sum(off * (cols[:, None] + rows[None, :]) ** 2))
+    C = (kappa - p_e * (1.0 - kappa)) ** 2
+    se = float(np.sqrt(max(A + B - C, 0.0) / (n * (1.0 - p_e) ** 2)))
+    z = NormalDist().inv_cdf(0.5 + confidence / 2.0)
+    return kappa, se, max(-1.0, kappa - z * se), min(1.0, kappa + z * se)

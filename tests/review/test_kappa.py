@@ -87,3 +87,46 @@ def test_rejects_bad_input(a, b):
     """Common practice, no published source: empty, unequal or 2-D inputs are errors."""
     with pytest.raises(ValueError):
         cohen_kappa(a, b)
+
+
+def _pairs(table):
+    """Rater label pairs reproducing a contingency table (rows: rater a, columns: rater b)."""
+    a, b = [], []
+    for i, row in enumerate(table):
+        for j, count in enumerate(row):
+            a += [i] * count
+            b += [j] * count
+    return np.array(a), np.array(b)
+
+
+def test_kappa_interval_worked_by_hand():
+    """Fleiss, Cohen & Everitt (1969) standard error, worked by hand for the table
+    [[20, 5], [10, 15]] (n = 50): p_o = 0.7, p_e = 0.5*0.6 + 0.5*0.4 = 0.5, kappa = 0.4;
+    A = 0.4 (1 - 1.1*0.6)^2 + 0.3 (1 - 0.9*0.6)^2 = 0.04624 + 0.06348 = 0.10972;
+    B = 0.36 (0.1*1.1^2 + 0.2*0.9^2) = 0.36 * 0.283 = 0.10188; C = (0.4 - 0.5*0.6)^2 = 0.01;
+    var = (0.10972 + 0.10188 - 0.01) / (50 * 0.25) = 0.016128, se = 0.126996."""
+    from labelq.review.kappa import kappa_interval
+
+    kappa, se, low, high = kappa_interval(*_pairs([[20, 5], [10, 15]]))
+    assert kappa == pytest.approx(0.4, abs=1e-12)
+    assert se == pytest.approx(np.sqrt(0.016128), abs=1e-12)
+    assert (low, high) == (pytest.approx(0.4 - 1.959964 * se, abs=1e-6),
+                           pytest.approx(0.4 + 1.959964 * se, abs=1e-6))
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_kappa_interval_matches_statsmodels(seed):
+    """statsmodels.stats.inter_rater.cohens_kappa (std_kappa, kappa_low, kappa_upp) on random
+    3 x 3 tables."""
+    from statsmodels.stats.inter_rater import cohens_kappa
+
+    from labelq.review.kappa import kappa_interval
+
+    rng = np.random.default_rng(seed)
+    table = rng.integers(1, 30, size=(3, 3)) + np.diag(rng.integers(10, 60, size=3))
+    ref = cohens_kappa(table)
+    kappa, se, low, high = kappa_interval(*_pairs(table))
+    assert kappa == pytest.approx(ref.kappa, abs=1e-12)
+    assert se == pytest.approx(ref.std_kappa, abs=1e-12)
+    assert low == pytest.approx(ref.kappa_low, abs=1e-9)
+    assert high == pytest.approx(ref.kappa_upp, abs=1e-9)
