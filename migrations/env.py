@@ -5,10 +5,12 @@ Two ways in:
 - ``labelq.store.migrate`` (every ``Store.open``) hands over an open connection in
   ``config.attributes["connection"]``; the revisions run inside the caller's transaction.
 - The ``alembic`` command run from a checkout reads the root ``alembic.ini``; the store is then
-  named as labelq's ``--db`` names it: ``-x db=PATH``, else ``$LABELQ_DB``, else ``sqlalchemy.url``
-  from the ini (``sqlite:///labelq.db``). A value without ``://`` is a file path.
+  named as labelq's ``--db`` names it: ``-x db=PATH`` or ``-x db=URL``, else ``$LABELQ_DB``, else
+  ``sqlalchemy.url`` from the ini (``sqlite:///labelq.db``). A value without ``://`` is a file
+  path; a URL may name a PostgreSQL database (``postgresql+psycopg://user@host/dbname``).
 
-``render_as_batch=True`` because SQLite alters most columns only by copying the table.
+``render_as_batch=True`` because SQLite alters most columns only by copying the table; on
+PostgreSQL the same batch operations are plain ALTER TABLE statements.
 """
 
 import os
@@ -18,8 +20,6 @@ from alembic import context
 
 from labelq.store.engine import make_engine, writing
 from labelq.store.models import Base
-
-_SQLITE_PREFIX = "sqlite:///"
 
 
 def _configure(**options) -> None:
@@ -33,8 +33,8 @@ def _configure(**options) -> None:
         context.run_migrations()
 
 
-def _database_url() -> str:
-    """The store named by ``-x db=``, ``$LABELQ_DB`` or ``sqlalchemy.url``, as a SQLite URL."""
+def _store() -> str:
+    """The store named by ``-x db=``, ``$LABELQ_DB`` or ``sqlalchemy.url``: a path or a URL."""
     value = (
         context.get_x_argument(as_dictionary=True).get("db")
         or os.environ.get("LABELQ_DB")
@@ -42,17 +42,14 @@ def _database_url() -> str:
     )
     if not value:
         raise SystemExit("no store given: pass -x db=PATH, set LABELQ_DB or sqlalchemy.url")
-    if "://" not in value:
-        return _SQLITE_PREFIX + value
-    if not value.startswith(_SQLITE_PREFIX):
-        raise SystemExit(f"labelq stores are SQLite files; cannot migrate {value}")
     return value
 
 
-def _run_with_url(url: str) -> None:
-    engine = make_engine(url.removeprefix(_SQLITE_PREFIX))
+def _run_on(store: str) -> None:
+    engine = make_engine(store)
     try:
-        with writing(engine) as connection:
+        # no store_info lock: the database may hold no store yet; DDL takes its own table locks
+        with writing(engine, lock=None) as connection:
             _configure(connection=connection)
     finally:
         engine.dispose()
@@ -65,6 +62,6 @@ else:
     if context.config.config_file_name is not None:
         fileConfig(context.config.config_file_name, disable_existing_loggers=False)
     if context.is_offline_mode():
-        _configure(url=_database_url(), literal_binds=True)
+        _configure(url=make_engine(_store()).url, literal_binds=True)
     else:
-        _run_with_url(_database_url())
+        _run_on(_store())

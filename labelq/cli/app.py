@@ -182,8 +182,11 @@ def next_(
     from labelq.loop.quick import quick_next_queue
 
     holder = by or default_person()
-    quick = quick_next_queue(db_path(db), n, strategy_name(strategy), holder)
-    if quick is not None:  # current scores: read without loading the engine
+    location = db_path(db)
+    # current scores in a file store: read through plain sqlite3 without loading the engine
+    quick = (quick_next_queue(location, n, strategy_name(strategy), holder)
+             if isinstance(location, Path) else None)
+    if quick is not None:
         render_queue(quick[0], quick[1], json)
         return
     with open_store(db) as store, render.progress_bar("refitting") as update:

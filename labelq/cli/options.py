@@ -5,7 +5,6 @@ from __future__ import annotations
 import functools
 import os
 from enum import Enum
-from pathlib import Path
 from typing import Annotated, Optional
 
 import typer
@@ -27,8 +26,10 @@ class ExportKind(str, Enum):
     model = "model"
 
 
-DbOption = Annotated[Optional[Path], typer.Option(
-    "--db", help="The store file (default: $LABELQ_DB, else ./labelq.db).", show_default=False)]
+DbOption = Annotated[Optional[str], typer.Option(
+    "--db", metavar="PATH|URL", help="The store: a file, or a PostgreSQL database as "
+    "postgresql+psycopg://user@host/dbname (default: $LABELQ_DB, else ./labelq.db).",
+    show_default=False)]
 JsonOption = Annotated[bool, typer.Option("--json", help="Print one JSON document instead of tables.")]
 ByOption = Annotated[Optional[str], typer.Option(
     "--by", help="Who is labelling (default: $LABELQ_BY, else your login name).",
@@ -40,15 +41,15 @@ StrategyOption = Annotated[Optional[Strategy], typer.Option(
 EXIT_USER_ERROR = 2
 
 
-def db_path(db: Optional[Path]) -> Path:
-    """The store path from --db, $LABELQ_DB or ./labelq.db."""
-    if db is not None:
-        return db
-    env = os.environ.get("LABELQ_DB")
-    return Path(env) if env else Path("labelq.db")
+def db_path(db: Optional[str]):
+    """The store from --db, $LABELQ_DB or ./labelq.db: a Path for a file, a SQLAlchemy URL for a
+    database on a server (see labelq.store.location; SQLAlchemy is imported only for a URL)."""
+    from labelq.store.location import store_location
+
+    return store_location(db or os.environ.get("LABELQ_DB") or "labelq.db")
 
 
-def open_store(db: Optional[Path]):
+def open_store(db: Optional[str]):
     """Open the store named by --db (upgrading it in place when it is older)."""
     from labelq.store import Store
 

@@ -1,4 +1,4 @@
-"""The labelq store: pool, labels and derived model state in one SQLite file.
+"""The labelq store: pool, labels and derived model state in one SQLite file or PostgreSQL database.
 
 ``Store.create`` / ``Store.open`` return a :class:`Store`; the schema is upgraded on open. Every
 error meant for the user is a named subclass of :class:`labelq.errors.LabelqError`.
@@ -15,10 +15,12 @@ from labelq.store.errors import (
     NotAStoreError,
     NothingToUndoError,
     StoreExistsError,
+    StoreUnreachableError,
     UnknownCandidateError,
     UnknownClassError,
     UnknownKeyError,
     UnknownSessionError,
+    UnsupportedStoreError,
 )
 from labelq.lazy import lazy_exports
 
@@ -47,11 +49,13 @@ __all__ = [
     "ScoreRow",
     "Store",
     "StoreExistsError",
+    "StoreUnreachableError",
     "UndoRecord",
     "UnknownCandidateError",
     "UnknownClassError",
     "UnknownKeyError",
     "UnknownSessionError",
+    "UnsupportedStoreError",
 ]
 
 __getattr__, __dir__ = lazy_exports(__name__, _WHERE)

@@ -10,7 +10,6 @@ its new class.
 
 from __future__ import annotations
 
-import json
 import secrets
 from dataclasses import dataclass
 from typing import Optional
@@ -19,7 +18,7 @@ import numpy as np
 from sqlalchemy import Connection, text
 
 from labelq.store.blobs import decode_rows
-from labelq.store.core import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP, StoreCore, class_names
+from labelq.store.core import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP, StoreCore, class_names, json_object
 from labelq.store.errors import AuditError
 from labelq.store.timestamps import utc_now
 
@@ -110,9 +109,9 @@ class AuditsMixin(StoreCore):
                 " JOIN candidates c ON c.id = a.candidate_id WHERE NOT EXISTS"
                 f" (SELECT 1 FROM label_events l WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL})"
                 " AND NOT EXISTS (SELECT 1 FROM claims k WHERE k.candidate_id = a.candidate_id"
-                " AND k.expires_at > :now AND (:holder IS NULL OR k.holder <> :holder))"
+                " AND k.expires_at > :now AND (CAST(:holder AS TEXT) IS NULL OR k.holder <> :holder))"
                 " ORDER BY a.audit_id, a.position"), {"now": now, "holder": holder}).all()
-        return [(cid, key, json.loads(meta)) for cid, key, meta in rows]
+        return [(cid, key, json_object(meta)) for cid, key, meta in rows]
 
     def audit_pace(self) -> tuple[int, int]:
         """(audit items labelled, other candidates labelled) since the oldest audit that still has

@@ -3,6 +3,7 @@
 from sqlalchemy import Connection, text
 
 from labelq.store.core import StoreCore
+from labelq.store.engine import is_sqlite
 from labelq.store.migrate import current_revision, head_revision
 from labelq.store.models import APPLICATION
 
@@ -38,6 +39,10 @@ def _schema_problems(connection: Connection) -> list[str]:
 
 
 def _integrity_problems(connection: Connection) -> list[str]:
+    """SQLite's own check of the file and of the foreign keys; a PostgreSQL server keeps both
+    itself (foreign keys are always enforced there), so there is nothing to ask it."""
+    if not is_sqlite(connection):
+        return []
     problems = [
         f"sqlite integrity: {message}"
         for (message,) in connection.exec_driver_sql("PRAGMA quick_check")
@@ -62,7 +67,7 @@ def _feature_problems(connection: Connection) -> list[str]:
 
 def _score_problems(connection: Connection) -> list[str]:
     stray = connection.execute(
-        text("SELECT COUNT(*) FROM scores WHERE fit_id IS NOT (SELECT MAX(id) FROM fits)")
+        text("SELECT COUNT(*) FROM scores WHERE fit_id <> COALESCE((SELECT MAX(id) FROM fits), -1)")
     ).scalar_one()
     missing = connection.execute(
         text(
@@ -90,7 +95,7 @@ def _event_problems(connection: Connection, table: str) -> list[str]:
     twice = connection.execute(
         text(
             f"SELECT COUNT(*) FROM (SELECT retracts_id FROM {table} WHERE retracts_id IS NOT NULL"
-            " GROUP BY retracts_id HAVING COUNT(*) > 1)"
+            " GROUP BY retracts_id HAVING COUNT(*) > 1) AS twice"
         )
     ).scalar_one()
     problems = []

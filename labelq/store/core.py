@@ -5,37 +5,43 @@ current label is its latest live label event. A skip event is live in the same s
 skipped while it has a live skip event (there is at most one).
 """
 
+import json
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import AbstractContextManager
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any, Optional, Union
 
 from sqlalchemy import Connection, Engine, text
 
-from labelq.store.engine import driver, reading, writing
+from labelq.store.engine import EVENTS, driver, is_sqlite, reading, writing
 from labelq.store.errors import UnknownKeyError
 from labelq.store.sql import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP  # noqa: F401 (re-exported)
+
+if TYPE_CHECKING:
+    from sqlalchemy.engine import URL
 
 _ID_CHUNK = 5000
 
 
 class StoreCore:
-    """The engine, path and transaction helpers each part of the store builds on."""
+    """The engine, location and transaction helpers each part of the store builds on."""
 
-    def __init__(self, path: Path, engine: Engine) -> None:
+    def __init__(self, path: Union[Path, "URL"], engine: Engine) -> None:
         self._path = path
         self._engine = engine
 
     @property
-    def path(self) -> Path:
-        """The store's file."""
+    def path(self) -> Union[Path, "URL"]:
+        """The store's file, or for a store on a server its SQLAlchemy URL (``str()`` shows it
+        with the password hidden, so messages can show it as they show a path)."""
         return self._path
 
     def _read(self) -> AbstractContextManager[Connection]:
         return reading(self._engine)
 
-    def _write(self) -> AbstractContextManager[Connection]:
-        return writing(self._engine)
+    def _write(self, lock: Optional[str] = EVENTS) -> AbstractContextManager[Connection]:
+        """A write transaction; ``lock`` as `labelq.store.engine.writing` (EVENTS or DERIVED)."""
+        return writing(self._engine, lock)
 
 
 def candidate_id(connection: Connection, key: str) -> int:
@@ -56,12 +62,22 @@ def feature_names(connection: Connection) -> list[str]:
     return list(connection.execute(text("SELECT name FROM feature_schema ORDER BY position")).scalars())
 
 
-def rows_by_id(connection: Connection, select_sql: str, ids: Sequence[int]) -> dict[int, tuple[Any, ...]]:
-    """Run ``select_sql`` (first column the id, ``{ids}`` where the id list goes) for ``ids``.
+def json_object(value: Any) -> Any:
+    """A JSON column's value read with raw SQL: SQLite returns the text, psycopg decodes it."""
+    return json.loads(value) if isinstance(value, (str, bytes)) else value
 
-    The ids are sent in chunks so any number of them stays within SQLite's parameter limit.
+
+def rows_by_id(connection: Connection, select_sql: str, ids: Sequence[int]) -> dict[int, tuple[Any, ...]]:
+    """Run ``select_sql`` (first column the id, ``IN ({ids})`` where the id list goes) for ``ids``.
+
+    SQLite: the ids are sent in chunks so any number of them stays within its parameter limit.
+    PostgreSQL: one array parameter.
     """
     unique = sorted({int(i) for i in ids})
+    if not is_sqlite(connection):
+        rows = connection.execute(text(select_sql.format(ids="SELECT unnest(CAST(:ids AS BIGINT[]))")),
+                                  {"ids": unique})
+        return {row[0]: tuple(row) for row in rows}
     cursor = driver(connection).cursor()
     found: dict[int, tuple[Any, ...]] = {}
     for start in range(0, len(unique), _ID_CHUNK):

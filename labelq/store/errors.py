@@ -4,7 +4,8 @@ from labelq.errors import LabelqError
 
 
 class StoreExistsError(LabelqError):
-    """A file already exists where a new store was to be created."""
+    """A file already exists where a new store was to be created, or the database already holds
+    a labelq store (or tables of the same names)."""
 
 
 class MissingDirectoryError(LabelqError):
@@ -12,11 +13,19 @@ class MissingDirectoryError(LabelqError):
 
 
 class MissingStoreError(LabelqError):
-    """No store file exists at the given path."""
+    """No store file exists at the given path, or the database holds no tables yet."""
 
 
 class NotAStoreError(LabelqError):
     """The path is a directory, not an SQLite database, or a database that is not a labelq store."""
+
+
+class UnsupportedStoreError(LabelqError):
+    """The URL names a database labelq cannot keep a store in (neither SQLite nor PostgreSQL)."""
+
+
+class StoreUnreachableError(LabelqError):
+    """The database server cannot be reached, or refuses the connection (login, no such database)."""
 
 
 class NewerStoreError(LabelqError):

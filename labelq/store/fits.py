@@ -1,31 +1,28 @@
 """Derived model state: fits, the scores of the last fit (the queue) and pool snapshots."""
 
-import json
 from collections.abc import Iterator, Sequence
 from itertools import repeat
 from typing import Any, Optional
 
 import numpy as np
-from sqlalchemy import Connection, Row, insert, select, text
+from sqlalchemy import Connection, Row, bindparam, insert, select, text
 
 from labelq.store.blobs import decode_rows, row_blobs
-from labelq.store.core import StoreCore, class_names, in_given_order, rows_by_id
-from labelq.store.engine import driver
+from labelq.store.core import StoreCore, class_names, in_given_order, json_object, rows_by_id
+from labelq.store.engine import DERIVED, bulk_insert, fetch_chunks
 from labelq.store.errors import UnknownSessionError
 from labelq.store.models import Fit, Snapshot
 from labelq.store.records import FitRecord, ScoreChunk, ScoreRow
 from labelq.store.sql import LAST_FIT, queue_sql
 from labelq.store.timestamps import utc_now
 
-_INSERT_SCORE = (
-    "INSERT INTO scores (candidate_id, fit_id, probabilities, predicted, p_top, p_low, p_high,"
-    " entropy, margin, bald, priority, rank, reason) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
-)
+_INSERT_COLUMNS = ("candidate_id", "fit_id", "probabilities", "predicted", "p_top", "p_low", "p_high",
+                   "entropy", "margin", "bald", "priority", "rank", "reason")
 _SCORE_COLUMNS = (
     "candidate_id, probabilities, predicted, p_top, p_low, p_high, entropy, margin, bald, priority, rank"
 )
 _WRITE_CHUNK = 50_000
-"""Score rows handed to one executemany call."""
+"""Score rows handed to one bulk insert."""
 _LAST_FIT = LAST_FIT
 _LAST_FIT_SCORES = f"FROM scores WHERE fit_id = {_LAST_FIT} AND candidate_id IN ({{ids}})"
 
@@ -73,7 +70,8 @@ class FitsMixin(StoreCore):
         reasons = [None] * n if reasons is None else list(reasons)
         if len(reasons) != n:
             raise ValueError(f"reasons must have {n} entries, got {len(reasons)}")
-        with self._write() as connection:
+        # the DERIVED lock: one refit writes at a time, label writes go on meanwhile (engine.py)
+        with self._write(DERIVED) as connection:
             n_classes = len(class_names(connection))
             if probabilities.shape[1] != n_classes:
                 raise ValueError(f"probabilities must have {n_classes} columns, got {probabilities.shape[1]}")
@@ -85,18 +83,19 @@ class FitsMixin(StoreCore):
             ).scalar_one()
             connection.execute(text("DELETE FROM scores"))
             if keep_models is not None:
+                # the newest fits by id (ids of a server's sequence may have gaps)
                 connection.execute(
-                    text("UPDATE fits SET model = NULL WHERE model IS NOT NULL AND id <= :last"),
-                    {"last": fit_id - keep_models},
+                    text("UPDATE fits SET model = NULL WHERE model IS NOT NULL AND id NOT IN"
+                         " (SELECT id FROM fits ORDER BY id DESC LIMIT :keep)"),
+                    {"keep": keep_models},
                 )
             rank = np.asarray(rank, dtype=object)
             ids = np.asarray(candidate_ids, dtype=np.int64)
-            raw = driver(connection)
             for start in range(0, n, _WRITE_CHUNK):
-                # chunked so that the Python rows built for executemany stay small on big pools
+                # chunked so that the Python rows built for the bulk insert stay small on big pools
                 part = slice(start, start + _WRITE_CHUNK)
-                raw.executemany(
-                    _INSERT_SCORE,
+                bulk_insert(
+                    connection, "scores", _INSERT_COLUMNS,
                     zip(
                         ids[part].tolist(),
                         repeat(fit_id),
@@ -187,7 +186,7 @@ class FitsMixin(StoreCore):
             ScoreRow(
                 candidate_id=cid,
                 key=key,
-                meta=json.loads(meta),
+                meta=json_object(meta),
                 probabilities=decode_rows([blob], n_classes)[0],
                 predicted=predicted,
                 p_top=p_top,
@@ -211,14 +210,13 @@ class FitsMixin(StoreCore):
         with self._read() as connection:
             n_classes = len(class_names(connection))
             if ids is None:
-                cursor = driver(connection).execute(
-                    f"SELECT {_SCORE_COLUMNS} FROM scores WHERE +fit_id = {_LAST_FIT} ORDER BY candidate_id"
-                )
-                try:
-                    while rows := cursor.fetchmany(chunk_size):
-                        yield _score_chunk(rows, n_classes)
-                finally:
-                    cursor.close()
+                for rows in fetch_chunks(
+                    connection,
+                    f"SELECT {_SCORE_COLUMNS} FROM scores WHERE +fit_id = {_LAST_FIT} ORDER BY candidate_id",
+                    None,
+                    chunk_size,
+                ):
+                    yield _score_chunk(rows, n_classes)
                 return
             unique = np.unique(np.asarray(ids, dtype=np.int64))
             for start in range(0, len(unique), chunk_size):
@@ -249,18 +247,17 @@ class FitsMixin(StoreCore):
         ids = [int(i) for i in ids]
         if not ids:
             return
-        with self._write() as connection:
+        with self._write(DERIVED) as connection:
             for start in range(0, len(ids), 500):
-                chunk = ids[start : start + 500]
-                marks = ",".join("?" * len(chunk))
-                raw = driver(connection)
-                raw.execute(f"DELETE FROM snapshots WHERE fit_id IN ({marks})", chunk)
-                raw.execute(f"DELETE FROM scores WHERE fit_id IN ({marks})", chunk)
-                raw.execute(f"DELETE FROM fits WHERE id IN ({marks})", chunk)
+                chunk = {"ids": ids[start : start + 500]}
+                for sql in ("DELETE FROM snapshots WHERE fit_id IN :ids",
+                            "DELETE FROM scores WHERE fit_id IN :ids",
+                            "DELETE FROM fits WHERE id IN :ids"):
+                    connection.execute(text(sql).bindparams(bindparam("ids", expanding=True)), chunk)
 
     def clear_derived(self) -> None:
         """Delete every fit, score and snapshot in one transaction (labels are kept)."""
-        with self._write() as connection:
+        with self._write(DERIVED) as connection:
             for table in ("snapshots", "scores", "fits"):
                 connection.execute(text(f"DELETE FROM {table}"))
 

@@ -64,11 +64,10 @@ def known_revisions() -> frozenset[str]:
 
 def current_revision(connection: "Connection") -> str | None:
     """The revision stamped in the database, or None if it was never stamped."""
-    from sqlalchemy import text  # here, not at the top: `labelq --version` needs no SQLAlchemy
+    # here, not at the top: `labelq --version` needs no SQLAlchemy
+    from sqlalchemy import inspect, text
 
-    has_table = connection.execute(text(
-        "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'alembic_version'")).first()
-    if has_table is None:
+    if not inspect(connection).has_table("alembic_version"):
         return None
     return connection.execute(text("SELECT version_num FROM alembic_version")).scalar()
 

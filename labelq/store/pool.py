@@ -1,13 +1,12 @@
 """The pool: importing candidates, their features, keys and metadata, and pool-wide feature scaling."""
 
 import json
-import sqlite3
 from collections.abc import Iterator, Sequence
 from itertools import repeat
 from typing import Any, NoReturn, Optional
 
 import numpy as np
-from sqlalchemy import Connection, text
+from sqlalchemy import Connection, bindparam, text
 
 from labelq.store.blobs import decode_rows, row_blobs
 from labelq.store.classes import resolve_class
@@ -20,9 +19,10 @@ from labelq.store.core import (
     candidate_id,
     class_names,
     in_given_order,
+    json_object,
     rows_by_id,
 )
-from labelq.store.engine import bump_event_mark, driver
+from labelq.store.engine import ConstraintViolation, bulk_insert, bump_event_mark, fetch_chunks, is_sqlite
 from labelq.store.errors import (
     DuplicateKeyError,
     FeatureMismatchError,
@@ -31,10 +31,8 @@ from labelq.store.errors import (
 from labelq.store.records import CandidateRecord
 from labelq.store.timestamps import utc_now
 
-_INSERT_CANDIDATE = (
-    "INSERT INTO candidates (key, features, meta, added_at, added_mark) VALUES (?, ?, ?, ?, ?)"
-)
-_INSERT_LABEL = "INSERT INTO label_events (candidate_id, class, by, at, mark) VALUES (?, ?, ?, ?, ?)"
+_CANDIDATE_COLUMNS = ("id", "key", "features", "meta", "added_at", "added_mark")
+_LABEL_COLUMNS = ("candidate_id", "class", "by", "at", "mark")
 
 
 class PoolMixin(StoreCore):
@@ -76,26 +74,28 @@ class PoolMixin(StoreCore):
             _ensure_schema(connection, list(feature_names))
             if labels is not None:
                 labels = _resolve_labels(connection, labels)
+            # ids given, contiguous after the largest (the write lock keeps other imports out)
             first_id = (
                 1 + connection.execute(text("SELECT COALESCE(MAX(id), 0) FROM candidates")).scalar_one()
             )
             now = utc_now()
-            raw = driver(connection)
             mark = bump_event_mark(connection)
             try:
-                raw.executemany(
-                    _INSERT_CANDIDATE,
-                    zip(keys, row_blobs(X), map(json.dumps, meta), repeat(now), repeat(mark)),
+                bulk_insert(
+                    connection, "candidates", _CANDIDATE_COLUMNS,
+                    zip(range(first_id, first_id + len(keys)), keys, row_blobs(X), map(json.dumps, meta),
+                        repeat(now), repeat(mark)),
                 )
-            except sqlite3.IntegrityError:
+            except ConstraintViolation:
                 raise DuplicateKeyError(
                     f"candidate key {_first_stored_key(connection, keys, first_id)!r} is already in the store"
                 ) from None
-            last_id = connection.execute(text("SELECT MAX(id) FROM candidates")).scalar_one()
-            assert last_id == first_id + len(keys) - 1, "candidate ids of one import must be contiguous"
+            if not is_sqlite(connection):  # the id sequence follows the ids given
+                connection.execute(text(
+                    "SELECT setval(pg_get_serial_sequence('candidates', 'id'), MAX(id)) FROM candidates"))
             if labels is not None:
-                raw.executemany(
-                    _INSERT_LABEL,
+                bulk_insert(
+                    connection, "label_events", _LABEL_COLUMNS,
                     (
                         (first_id + i, label, by, now, mark)
                         for i, label in enumerate(labels)
@@ -121,8 +121,8 @@ class PoolMixin(StoreCore):
     def pool_ids(self) -> np.ndarray:
         """Every candidate id in id order, int64 (n,)."""
         with self._read() as connection:
-            cursor = driver(connection).execute("SELECT id FROM candidates ORDER BY id")
-            return np.fromiter((row[0] for row in cursor), dtype=np.int64)
+            chunks = fetch_chunks(connection, "SELECT id FROM candidates ORDER BY id")
+            return np.fromiter((row[0] for rows in chunks for row in rows), dtype=np.int64)
 
     def iter_features(
         self, chunk_size: int = 100_000, max_mark: Optional[int] = None
@@ -154,7 +154,7 @@ class PoolMixin(StoreCore):
         """Candidate metadata in the order of ``ids``."""
         with self._read() as connection:
             found = rows_by_id(connection, "SELECT id, meta FROM candidates WHERE id IN ({ids})", ids)
-        return [json.loads(row[1]) for row in in_given_order(found, ids, _unknown_candidate)]
+        return [json_object(row[1]) for row in in_given_order(found, ids, _unknown_candidate)]
 
     def candidate(self, key: str) -> CandidateRecord:
         """The candidate ``key`` with its features by name, metadata, current label and skip state."""
@@ -181,7 +181,7 @@ class PoolMixin(StoreCore):
             id=cid,
             key=key,
             features=dict(zip(names, values.tolist())),
-            meta=json.loads(meta),
+            meta=json_object(meta),
             label=label,
             skipped=bool(skipped),
         )
@@ -245,16 +245,11 @@ def _ensure_schema(connection: Connection, names: list[str]) -> None:
 
 def _first_stored_key(connection: Connection, keys: Sequence[str], first_new_id: int) -> str:
     """The first of ``keys`` (input order) held by a candidate stored before this import."""
-    cursor = driver(connection).cursor()
+    query = text("SELECT key FROM candidates WHERE id < :first AND key IN :keys").bindparams(
+        bindparam("keys", expanding=True))
     for start in range(0, len(keys), 500):
         chunk = list(keys[start : start + 500])
-        placeholders = ",".join("?" * len(chunk))
-        stored = {
-            row[0]
-            for row in cursor.execute(
-                f"SELECT key FROM candidates WHERE id < ? AND key IN ({placeholders})", [first_new_id, *chunk]
-            )
-        }
+        stored = set(connection.execute(query, {"first": first_new_id, "keys": chunk}).scalars())
         for key in chunk:
             if key in stored:
                 return key
@@ -265,17 +260,13 @@ def _feature_chunks(
     connection: Connection, width: int, chunk_size: int, max_mark: Optional[int] = None
 ) -> Iterator[tuple[np.ndarray, np.ndarray]]:
     if max_mark is None:
-        cursor = driver(connection).execute("SELECT id, features FROM candidates ORDER BY id")
+        rows = fetch_chunks(connection, "SELECT id, features FROM candidates ORDER BY id", None, chunk_size)
     else:
-        cursor = driver(connection).execute(
-            "SELECT id, features FROM candidates WHERE added_mark <= ? ORDER BY id", (max_mark,)
-        )
-    try:
-        while rows := cursor.fetchmany(chunk_size):
-            ids, blobs = zip(*rows)
-            yield np.array(ids, dtype=np.int64), decode_rows(blobs, width)
-    finally:
-        cursor.close()
+        rows = fetch_chunks(connection, "SELECT id, features FROM candidates WHERE added_mark <= :mark"
+                            " ORDER BY id", {"mark": max_mark}, chunk_size)
+    for chunk in rows:
+        ids, blobs = zip(*chunk)
+        yield np.array(ids, dtype=np.int64), decode_rows(blobs, width)
 
 
 def _update_scaling(connection: Connection, width: int) -> None:

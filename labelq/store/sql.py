@@ -1,7 +1,9 @@
 """SQL text shared by the SQLAlchemy store and the quick read path (`labelq.store.quick`).
 
 Plain strings with ``:name`` parameters, which both SQLAlchemy's ``text()`` and the standard
-``sqlite3`` module accept; this module imports nothing, so the quick path stays light.
+``sqlite3`` module accept; this module imports nothing, so the quick path stays light. The text is
+valid on PostgreSQL too (the store on a server runs it through SQLAlchemy): a parameter that is
+only tested for NULL is cast, so the server knows its type.
 """
 
 APPLICATION = "labelq"
@@ -18,7 +20,8 @@ LIVE_SKIP = (
 """SQL condition on ``skip_events s``: the event is a skip and has not been retracted.
 
 The unary ``+`` in both conditions keeps SQLite from answering ``retracts_id IS NULL`` with the
-retracts_id index (which matches nearly every row) instead of the candidate_id index.
+retracts_id index (which matches nearly every row) instead of the candidate_id index; PostgreSQL
+reads it as the identity on integers (its planner does not need the hint).
 """
 
 CURRENT_LABEL_IDS = f"SELECT MAX(l.id) FROM label_events l WHERE {LIVE_LABEL} GROUP BY l.candidate_id"
@@ -38,7 +41,7 @@ def queue_sql(exclude_claimed: bool) -> str:
     :offset); with ``exclude_claimed``, candidates held by someone other than :holder are left out."""
     claimed = (
         " AND NOT EXISTS (SELECT 1 FROM claims k WHERE k.candidate_id = sc.candidate_id"
-        " AND k.expires_at > :now AND (:holder IS NULL OR k.holder <> :holder))"
+        " AND k.expires_at > :now AND (CAST(:holder AS TEXT) IS NULL OR k.holder <> :holder))"
         if exclude_claimed
         else ""
     )
@@ -64,5 +67,5 @@ CLAIM = (
 
 HELD_BY_OTHERS = (
     "SELECT COUNT(*), MAX(expires_at) FROM claims WHERE expires_at > :now"
-    " AND (:holder IS NULL OR holder <> :holder)"
+    " AND (CAST(:holder AS TEXT) IS NULL OR holder <> :holder)"
 )

@@ -1,4 +1,5 @@
-"""The labelq store: one SQLite file holding the pool, the labels and the derived model state."""
+"""The labelq store: one SQLite file, or one PostgreSQL database, holding the pool, the labels and
+the derived model state."""
 
 import os
 import sqlite3
@@ -6,15 +7,15 @@ from collections.abc import Sequence
 from contextlib import closing
 from pathlib import Path
 from types import TracebackType
-from typing import Optional, Union
+from typing import TYPE_CHECKING, Optional, Union
 
-from sqlalchemy import text
+from sqlalchemy import Connection, inspect, text
 
 from labelq.store.audits import AuditsMixin
 from labelq.store.check import CheckMixin
 from labelq.store.claims import ClaimsMixin
 from labelq.store.core import class_names
-from labelq.store.engine import make_engine, writing
+from labelq.store.engine import make_engine, reading, writing
 from labelq.store.errors import (
     InvalidClassesError,
     MissingDirectoryError,
@@ -26,12 +27,18 @@ from labelq.store.errors import (
 from labelq.store.events import EventsMixin
 from labelq.store.fits import FitsMixin
 from labelq.store.history import ItemHistoryMixin
+from labelq.store.location import store_location
 from labelq.store.migrate import current_revision, head_revision, known_revisions, upgrade
-from labelq.store.models import APPLICATION
+from labelq.store.models import APPLICATION, Base
 from labelq.store.pool import PoolMixin
 from labelq.store.sessions import SessionsMixin
 
+if TYPE_CHECKING:
+    from sqlalchemy.engine import URL
+
 _SQLITE_HEADER = b"SQLite format 3\x00"
+Location = Union[str, os.PathLike[str], "URL"]
+"""A store file's path, or a URL (``postgresql+psycopg://user@host/dbname``, ``sqlite:///PATH``)."""
 
 
 class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, ClaimsMixin, AuditsMixin,
@@ -39,10 +46,28 @@ class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, 
     """A labelq store; use :meth:`create` or :meth:`open`, and close it (or use ``with``)."""
 
     @classmethod
-    def create(cls, path: Union[str, os.PathLike[str]], classes: Sequence[str]) -> "Store":
-        """Create a store at ``path`` with ``classes`` (at least two distinct non-empty names)."""
-        path = Path(path)
+    def create(cls, location: Location, classes: Sequence[str]) -> "Store":
+        """Create a store at ``location`` with ``classes`` (at least two distinct non-empty names).
+
+        A path makes a new SQLite file; a PostgreSQL URL makes the store's tables in that
+        database, which must exist and hold no labelq store (nor tables of the same names).
+        """
+        location = store_location(location)
         names = _validate_classes(classes)
+        if isinstance(location, Path):
+            return cls._create_file(location, names)
+        engine = make_engine(location)
+        try:
+            with writing(engine, lock=None) as connection:
+                _refuse_taken_database(connection, location)
+                _make_schema(connection, names)
+        except BaseException:
+            engine.dispose()
+            raise
+        return cls(location, engine)
+
+    @classmethod
+    def _create_file(cls, path: Path, names: list[str]) -> "Store":
         if not path.parent.is_dir():
             raise MissingDirectoryError(
                 f"cannot create a store at {path}: directory {path.parent} does not exist"
@@ -54,11 +79,7 @@ class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, 
         engine = make_engine(path)
         try:
             with writing(engine) as connection:
-                upgrade(connection)
-                connection.execute(
-                    text("INSERT INTO classes (name, position) VALUES (:name, :position)"),
-                    [{"name": name, "position": position} for position, name in enumerate(names)],
-                )
+                _make_schema(connection, names)
         except BaseException:
             engine.dispose()
             for leftover in (path, Path(f"{path}-wal"), Path(f"{path}-shm")):
@@ -67,12 +88,15 @@ class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, 
         return cls(path, engine)
 
     @classmethod
-    def open(cls, path: Union[str, os.PathLike[str]]) -> "Store":
-        """Open the store at ``path``, upgrading an older schema in place; newer ones are refused."""
-        path = Path(path)
-        revision = _inspect(path)
-        engine = make_engine(path)
+    def open(cls, location: Location) -> "Store":
+        """Open the store at ``location``, upgrading an older schema in place; newer ones are refused."""
+        location = store_location(location)
+        revision = _inspect(location) if isinstance(location, Path) else None
+        engine = make_engine(location)
         try:
+            if revision is None:
+                with reading(engine) as connection:
+                    revision = _inspect_database(connection, location)
             if revision != head_revision():
                 with writing(engine) as connection:
                     if current_revision(connection) != head_revision():
@@ -80,7 +104,7 @@ class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, 
         except BaseException:
             engine.dispose()
             raise
-        return cls(path, engine)
+        return cls(location, engine)
 
     def close(self) -> None:
         """Release the store's connections."""
@@ -113,6 +137,47 @@ def _validate_classes(classes: Sequence[str]) -> list[str]:
     ):
         raise InvalidClassesError(f"classes must be at least two distinct non-empty names, got {names}")
     return names
+
+
+def _make_schema(connection: Connection, names: list[str]) -> None:
+    """The tables at the head revision, and the classes in order."""
+    upgrade(connection)
+    connection.execute(
+        text("INSERT INTO classes (name, position) VALUES (:name, :position)"),
+        [{"name": name, "position": position} for position, name in enumerate(names)],
+    )
+
+
+def _refuse_taken_database(connection: Connection, url: "URL") -> None:
+    """StoreExistsError when the database holds a labelq store or a table a store would make."""
+    tables = set(inspect(connection).get_table_names())
+    if "store_info" in tables:
+        raise StoreExistsError(f"a labelq store already exists in {url}")
+    taken = sorted(tables & {*Base.metadata.tables, "alembic_version"})
+    if taken:
+        raise StoreExistsError(f"{url} already has tables named {', '.join(taken)}; "
+                               "a labelq store needs a database without them")
+
+
+def _inspect_database(connection: Connection, url: "URL") -> str:
+    """The schema revision of the labelq store in the database at ``url``.
+
+    Raises MissingStoreError (no tables at all), NotAStoreError or NewerStoreError.
+    """
+    tables = set(inspect(connection).get_table_names())
+    if not tables:
+        raise MissingStoreError(f"no labelq store in {url} (run `labelq init --db URL` first)")
+    if not {"store_info", "alembic_version"} <= tables:
+        raise NotAStoreError(f"{url} is a database without the labelq marker")
+    application = connection.execute(text("SELECT application FROM store_info WHERE id = 1")).scalar()
+    revision = connection.execute(text("SELECT version_num FROM alembic_version")).scalar()
+    if application != APPLICATION or revision is None:
+        raise NotAStoreError(f"{url} is a database without the labelq marker")
+    if revision not in known_revisions():
+        raise NewerStoreError(
+            f"{url} has schema revision {revision}, unknown to this labelq (written by a newer version?)"
+        )
+    return revision
 
 
 def _inspect(path: Path) -> str:

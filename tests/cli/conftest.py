@@ -1,4 +1,5 @@
-"""Shared fixtures for CLI tests: temporary stores built from data bundled with scikit-learn.
+"""Shared fixtures for CLI tests: temporary stores built from data bundled with scikit-learn, on
+each back end (an SQLite file in tmp_path, a new PostgreSQL database; tests/conftest.py).
 
 Data: scikit-learn's bundled breast-cancer (Wisconsin diagnostic) and iris data sets, written to
 CSV files in a temporary folder; keys are made up as row numbers ("c000").
@@ -8,14 +9,15 @@ from __future__ import annotations
 
 import csv
 import json
-import sqlite3
 from pathlib import Path
 
 import pytest
 from sklearn.datasets import load_breast_cancer, load_iris
+from sqlalchemy import inspect, text
 from typer.testing import CliRunner
 
 from labelq.cli.app import app
+from tests.conftest import db_argument, engine_for
 
 TABLES = ("candidates", "feature_schema", "classes", "label_events", "skip_events", "sessions",
           "fits", "scores", "snapshots", "claims", "audits", "audit_items")
@@ -63,39 +65,49 @@ def iris_csv(tmp_path) -> Path:
 
 
 class Cli:
-    """Invoke `labelq` on one temporary store and inspect it."""
+    """Invoke `labelq` on one temporary store and inspect it.
 
-    def __init__(self, db: Path):
-        self.db = db
+    ``location`` is the store's path or URL; ``db`` the text given to ``--db`` (a URL with its
+    password, which ``str()`` of a URL hides)."""
+
+    def __init__(self, location):
+        self.location = location
+        self.db = db_argument(location)
         self.runner = CliRunner()
 
     def __call__(self, *args, input=None):
-        return self.runner.invoke(app, [*map(str, args), "--db", str(self.db)], input=input)
+        return self.runner.invoke(app, [*map(str, args), "--db", self.db], input=input)
 
     def json(self, *args):
         result = self(*args, "--json")
         assert result.exit_code == 0, result.output
         return json.loads(result.stdout)
 
+    def query(self, sql: str, params=None) -> list[tuple]:
+        """The rows of ``sql``, read through a plain SQLAlchemy engine (none of the store's code)."""
+        engine = engine_for(self.location)
+        try:
+            with engine.connect() as connection:
+                return [tuple(row) for row in connection.execute(text(sql), params or {})]
+        finally:
+            engine.dispose()
+
     def counts(self) -> dict:
         """Row counts of every table."""
-        con = sqlite3.connect(self.db)
-        try:
-            return {t: con.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in TABLES}
-        finally:
-            con.close()
+        return {t: self.query(f"SELECT COUNT(*) FROM {t}")[0][0] for t in TABLES}
 
     def dump(self) -> dict:
         """Every row of every table, sorted (the store is unchanged <=> equal dumps); {} when
-        there is no store file."""
-        if not self.db.exists():
+        there is no store (no file, or a database without the store's tables)."""
+        if isinstance(self.location, Path) and not self.location.exists():
             return {}
-        con = sqlite3.connect(self.db)
+        engine = engine_for(self.location)
         try:
-            return {t: sorted(con.execute(f"SELECT * FROM {t}").fetchall(), key=repr)
-                    for t in TABLES}
+            if "store_info" not in inspect(engine).get_table_names():
+                return {}
         finally:
-            con.close()
+            engine.dispose()
+        return {t: sorted(self.query(f"SELECT * FROM {t}"), key=repr) for t in TABLES}
 
     def truth(self, csv_path: Path) -> dict:
         with open(csv_path, newline="") as fh:
@@ -103,8 +115,15 @@ class Cli:
 
 
 @pytest.fixture
-def cli(tmp_path) -> Cli:
-    return Cli(tmp_path / "store.db")
+def cli(store_at) -> Cli:
+    """The command line on a new store location of this test's back end (nothing made yet)."""
+    return Cli(store_at("store.db"))
+
+
+@pytest.fixture
+def new_cli(store_at):
+    """``new_cli(name)``: another Cli on a further new store location of the same back end."""
+    return lambda name: Cli(store_at(name))
 
 
 @pytest.fixture

@@ -175,6 +175,7 @@ def test_sittings_split_at_pauses_of_30_minutes_or_more(cancer_store, cancer_csv
     assert "under 30 minutes apart" in out
 
 
+@pytest.mark.sqlite_only("touches no store")
 def test_help_states_the_sitting_rule(cli):
     result = cli.runner.invoke(app, ["history", "--help"], env={"COLUMNS": "100"})
     assert result.exit_code == 0

@@ -10,8 +10,6 @@ before and after a refused import is common practice for "nothing changed".
 
 from __future__ import annotations
 
-import sqlite3
-
 import numpy as np
 import pytest
 
@@ -34,24 +32,16 @@ SECOND = [
 FEATURES = ["sugar_brix", "hue_deg", "firmness_kgf"]
 
 
-def store_rows(db) -> dict:
+def store_rows(cli) -> dict:
     """Every row of the candidates table (and the feature schema and label events), in id
     order: equal dumps before and after mean the store did not change."""
-    con = sqlite3.connect(db)
-    try:
-        return {table: con.execute(f"SELECT * FROM {table} ORDER BY 1, 2").fetchall()
-                for table in ("candidates", "feature_schema", "label_events")}
-    finally:
-        con.close()
+    return {table: cli.query(f"SELECT * FROM {table} ORDER BY 1, 2")
+            for table in ("candidates", "feature_schema", "label_events")}
 
 
-def stored_features(db) -> dict[str, list[float]]:
+def stored_features(cli) -> dict[str, list[float]]:
     """Each stored candidate's feature values (the float64 blob), by key."""
-    con = sqlite3.connect(db)
-    try:
-        rows = con.execute("SELECT key, features FROM candidates").fetchall()
-    finally:
-        con.close()
+    rows = cli.query("SELECT key, features FROM candidates")
     return {key: np.frombuffer(blob, dtype=np.float64).tolist() for key, blob in rows}
 
 
@@ -66,12 +56,12 @@ def orchard(cli, tmp_path, csv_file):
 
 def refused(cli, user_error, *args, message: str):
     """Run `labelq import ...`; it must fail with exactly ``message`` and change nothing."""
-    before_counts, before_rows = cli.counts(), store_rows(cli.db)
+    before_counts, before_rows = cli.counts(), store_rows(cli)
     result = cli("import", *args)
     user_error(result)
     assert result.stderr.strip() == f"labelq: {message}"
     assert cli.counts() == before_counts
-    assert store_rows(cli.db) == before_rows
+    assert store_rows(cli) == before_rows
 
 
 def with_cell(rows, key, column, value):
@@ -145,7 +135,7 @@ def test_a_refused_first_import_leaves_the_store_empty(cli, tmp_path, csv_file, 
     refused(cli, user_error, path, "--id", "key", "--features", "sugar_brix,hue_deg", message=(
         f'{path}, line 4, column "hue_deg": empty cell in a feature column (use --missing '
         "drop-row or --missing median, or leave hue_deg out of --features)"))
-    assert store_rows(cli.db)["candidates"] == []
+    assert store_rows(cli)["candidates"] == []
 
 
 def test_option_errors(orchard, tmp_path, csv_file, user_error):
@@ -170,7 +160,7 @@ def test_drop_row_leaves_out_the_rows_and_reports_them(orchard, tmp_path, csv_fi
     assert doc["dropped_rows"] == 2 and doc["first_dropped_line"] == 3
     assert doc["missing_cells"] == {"sugar_brix": 1, "hue_deg": 1}
     assert doc["filled_cells"] == {} and doc["filled_with"] == {}
-    keys = set(stored_features(orchard.db))
+    keys = set(stored_features(orchard))
     assert {"B01", "B03", "B05"} <= keys and not {"B02", "B04"} & keys
 
 
@@ -192,8 +182,8 @@ def test_median_fills_the_empty_cell(orchard, tmp_path, csv_file):
     assert doc["missing"] == "median"
     assert doc["filled_cells"] == {"sugar_brix": 1}
     assert doc["filled_with"] == {"sugar_brix": 10.625}
-    assert stored_features(orchard.db)["B02"] == [10.625, 36.0, 6.5]
-    assert stored_features(orchard.db)["B01"] == [12.5, 33.0, 7.25]
+    assert stored_features(orchard)["B02"] == [10.625, 36.0, 6.5]
+    assert stored_features(orchard)["B01"] == [12.5, 33.0, 7.25]
 
 
 def test_the_default_rule_and_its_summary(cli, tmp_path, csv_file):
@@ -206,25 +196,26 @@ def test_the_default_rule_and_its_summary(cli, tmp_path, csv_file):
             "a number; set with --features or --meta).") in text
     assert "Metadata (2): bin, picked_on." in text
     assert "Empty feature cells: none (--missing error)." in text
-    assert stored_features(cli.db)["A02"] == [9.75, 40.0, 6.0]
+    assert stored_features(cli)["A02"] == [9.75, 40.0, 6.0]
 
 
-def test_meta_and_features_set_the_split(cli, tmp_path, csv_file):
+def test_meta_and_features_set_the_split(cli, new_cli, tmp_path, csv_file):
     assert cli("init", "--classes", "export,local,juice").exit_code == 0
     path = csv_file(tmp_path / "first.csv", HEADER, FIRST)
     doc = cli.json("import", path, "--id", "key", "--meta", "bin,picked_on,hue_deg")
     assert doc["feature_rule"] == "meta"
     assert doc["features"] == ["sugar_brix", "firmness_kgf"]
     assert doc["metadata"] == ["bin", "picked_on", "hue_deg"]
-    other = cli.__class__(tmp_path / "other.db")
+    other = new_cli("other.db")
     assert other("init", "--classes", "export,local,juice").exit_code == 0
     doc = other.json("import", path, "--id", "key", "--features", "firmness_kgf,hue_deg")
     assert doc["feature_rule"] == "features"
     assert doc["features"] == ["firmness_kgf", "hue_deg"]
     assert doc["metadata"] == ["bin", "picked_on", "sugar_brix"]
-    assert stored_features(other.db)["A01"] == [7.5, 31.0]
+    assert stored_features(other)["A01"] == [7.5, 31.0]
 
 
+@pytest.mark.sqlite_only("touches no store")
 def test_help_states_the_rule(cli):
     result = cli.runner.invoke(app, ["import", "--help"])
     assert result.exit_code == 0

@@ -79,6 +79,7 @@ def test_export_unknown_kind(cancer_store, user_error):
 
 
 @pytest.mark.slow
+@pytest.mark.sqlite_only("simulate reads a CSV and touches no store")
 def test_simulate_json_default_beats_random(cli, full_cancer_csv, tmp_path):
     """Replay on scikit-learn's breast-cancer data (all 569 rows), 3 seeds, 40 labels from none:
     the default strategy's area under the learning curve exceeds random labelling's (Lewis & Gale
@@ -100,6 +101,7 @@ def test_simulate_json_default_beats_random(cli, full_cancer_csv, tmp_path):
     assert png.read_bytes()[:4] == b"\x89PNG"
 
 
+@pytest.mark.sqlite_only("simulate reads a CSV and touches no store")
 def test_simulate_truth_file(cli, cancer_csv, tmp_path, user_error):
     """--truth-file joins the classes by key; a key missing from it is one clear error."""
     rows = list(csv.DictReader(open(cancer_csv)))
@@ -124,6 +126,7 @@ def test_simulate_truth_file(cli, cancer_csv, tmp_path, user_error):
     user_error(cli.runner.invoke(app, args), rows[0]["key"])
 
 
+@pytest.mark.sqlite_only("simulate reads a CSV and touches no store")
 def test_simulate_table(cli, cancer_csv):
     result = cli.runner.invoke(app, ["simulate", str(cancer_csv), "--id", "key", "--truth",
                                      "truth", "--budget", "6", "--seeds", "1",
@@ -132,6 +135,7 @@ def test_simulate_table(cli, cancer_csv):
     assert "Full-pool accuracy" in result.stdout and "entropy" in result.stdout
 
 
+@pytest.mark.sqlite_only("simulate reads a CSV and touches no store")
 def test_simulate_bad_truth_column(cli, cancer_csv, user_error):
     result = cli.runner.invoke(app, ["simulate", str(cancer_csv), "--id", "key", "--truth",
                                      "nope"])

@@ -88,6 +88,7 @@ def test_session_json_prompts_on_stderr_summary_on_stdout(cancer_store):
     assert head in result.stderr
 
 
+@pytest.mark.sqlite_only("the demo builds its own SQLite file in a folder")
 def test_demo_json(cli, tmp_path):
     result = cli.runner.invoke(app, ["demo", "--dir", str(tmp_path / "d"), "--json"])
     assert result.exit_code == 0, result.output

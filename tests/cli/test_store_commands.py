@@ -13,6 +13,7 @@ import pytest
 from labelq.cli.app import app
 
 
+@pytest.mark.sqlite_only("touches no store")
 def test_help_lists_every_command(cli):
     """Each command has its own line in the Commands section (its name as the line's first
     word, so "label" is not found inside "labelq" or "labels")."""
@@ -42,15 +43,17 @@ def test_init_refuses_existing_store(cancer_store, user_error):
 
 def test_init_needs_two_classes(cli, user_error):
     user_error(cli("init", "--classes", "only"))
-    assert not cli.db.exists()
+    assert cli.dump() == {}
 
 
+@pytest.mark.sqlite_only("a folder given as the store file")
 def test_db_is_a_directory(tmp_path, cli, user_error):
     result = cli.runner.invoke(app,
                                ["status", "--db", str(tmp_path)])
     user_error(result, str(tmp_path))
 
 
+@pytest.mark.sqlite_only("a text file given as the store file")
 def test_db_is_not_a_store(tmp_path, cli, user_error):
     other = tmp_path / "notes.txt"
     other.write_text("shopping list\n")
@@ -145,6 +148,7 @@ def test_every_candidate_labelled(cli, tmp_path, csv_file):
     assert cli.json("status")["snapshot"]["mean_entropy"] >= 0.0
 
 
+@pytest.mark.sqlite_only("touches no store")
 def test_version(cli):
     result = cli.runner.invoke(app, ["--version"])
     assert result.exit_code == 0

@@ -1,27 +1,51 @@
-"""Fixtures for store tests: fresh stores in tmp_path and a raw view of their rows."""
-
-import sqlite3
-from contextlib import closing
-from pathlib import Path
+"""Fixtures for store tests: fresh stores on each back end (an SQLite file in tmp_path, a new
+PostgreSQL database; tests/conftest.py) and a plain view of their rows."""
 
 import numpy as np
 import pytest
+from sqlalchemy import inspect, text
 
 from labelq.store import Store
+from tests.conftest import engine_for
 
 FEATURES = ["firmness_kgf", "sugar_brix", "hue_deg"]
 CLASSES = ["export", "local", "juice"]
 
 
-def table_rows(path: Path) -> dict[str, int]:
-    """Row count of every table plus the event mark, read with plain sqlite3 (common practice)."""
-    with closing(sqlite3.connect(path)) as connection:
-        tables = [
-            name for (name,) in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
-        ]
-        counts = {name: connection.execute(f'SELECT COUNT(*) FROM "{name}"').fetchone()[0] for name in tables}
-        counts["event_mark"] = connection.execute("SELECT event_mark FROM store_info").fetchone()[0]
+def table_rows(location) -> dict[str, int]:
+    """Row count of every table plus the event mark, read through a plain SQLAlchemy engine
+    (none of the store's code; common practice). ``location``: a store's path or URL."""
+    engine = engine_for(location)
+    try:
+        with engine.connect() as connection:
+            tables = inspect(connection).get_table_names()
+            counts = {name: connection.execute(text(f'SELECT COUNT(*) FROM "{name}"')).scalar_one()
+                      for name in tables}
+            counts["event_mark"] = connection.execute(text("SELECT event_mark FROM store_info")).scalar_one()
+    finally:
+        engine.dispose()
     return counts
+
+
+def table_names(location) -> set[str]:
+    """The tables of the store at ``location`` (a path or a URL)."""
+    engine = engine_for(location)
+    try:
+        return set(inspect(engine).get_table_names())
+    finally:
+        engine.dispose()
+
+
+def execute_sql(location, *statements: str) -> None:
+    """Run ``statements`` in one transaction through a plain SQLAlchemy engine, as a person with
+    a database shell would (SQLite's foreign-key checks are off there, as in any new connection)."""
+    engine = engine_for(location)
+    try:
+        with engine.begin() as connection:
+            for statement in statements:
+                connection.execute(text(statement))
+    finally:
+        engine.dispose()
 
 
 def orchard(n: int, seed: int = 0) -> tuple[list[str], np.ndarray, list[dict[str, str]]]:
@@ -34,9 +58,9 @@ def orchard(n: int, seed: int = 0) -> tuple[list[str], np.ndarray, list[dict[str
 
 
 @pytest.fixture
-def store(tmp_path: Path):
-    """An empty store with the three apple grades."""
-    with Store.create(tmp_path / "labelq.db", CLASSES) as created:
+def store(store_at):
+    """An empty store with the three apple grades (on each back end)."""
+    with Store.create(store_at(), CLASSES) as created:
         yield created
 
 

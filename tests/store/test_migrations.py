@@ -1,22 +1,38 @@
-"""Schema revisions: one head, upgrades that keep data, newer stores refused, models in step."""
-
-import sqlite3
-from contextlib import closing
-from pathlib import Path
+"""Schema revisions: one head, upgrades that keep data, newer stores refused, models in step;
+on both back ends (an SQLite file, a PostgreSQL database)."""
 
 import pytest
 from alembic import command
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import text
+from sqlalchemy import inspect, text
 
 from labelq.store import NewerStoreError, Store
 from labelq.store.engine import make_engine, reading, writing
-from labelq.store.migrate import alembic_config, head_revision, upgrade
+from labelq.store.migrate import alembic_config, current_revision, head_revision, upgrade
 from labelq.store.models import Base
+from tests.conftest import engine_for
 
-from .conftest import CLASSES, FEATURES, table_rows
+from .conftest import CLASSES, FEATURES, table_names, table_rows
+
+
+def _query(location, sql: str) -> list[tuple]:
+    """Rows of ``sql`` read through a plain SQLAlchemy engine."""
+    engine = engine_for(location)
+    try:
+        with engine.connect() as connection:
+            return [tuple(row) for row in connection.execute(text(sql))]
+    finally:
+        engine.dispose()
+
+
+def _columns(location, table: str) -> list[str]:
+    engine = engine_for(location)
+    try:
+        return [column["name"] for column in inspect(engine).get_columns(table)]
+    finally:
+        engine.dispose()
 
 
 def test_there_is_exactly_one_head() -> None:
@@ -30,34 +46,34 @@ def test_revisions_build_exactly_the_models(store: Store) -> None:
     assert differences == []
 
 
-def _store_at_first_revision(path: Path) -> None:
-    """A store as labelq wrote it at revision 0001, holding data written with raw SQL."""
-    engine = make_engine(path)
-    with writing(engine) as connection:
+def _store_at_first_revision(location) -> None:
+    """A store as labelq wrote it at revision 0001, holding data written with plain SQL."""
+    engine = make_engine(location)
+    with writing(engine, lock=None) as connection:
         upgrade(connection, "0001")
-        # the features blob is 7.0, 12.0, 42.0 as float64 little-endian (IEEE 754 by hand)
         statements = [
             "INSERT INTO classes (name, position) VALUES ('export', 0), ('local', 1), ('juice', 2)",
             "INSERT INTO feature_schema (name, position, mean, scale) VALUES"
             " ('firmness_kgf', 0, 7.0, 1.0), ('sugar_brix', 1, 12.0, 2.0), ('hue_deg', 2, 60.0, 30.0)",
             "INSERT INTO candidates (key, features, meta, added_at) VALUES"
-            " ('old-1', X'0000000000001C4000000000000028400000000000004540', '{\"bin\": \"B1\"}',"
-            " '2026-01-01T00:00:00Z')",
+            " ('old-1', :features, '{\"bin\": \"B1\"}', '2026-01-01T00:00:00Z')",
             "INSERT INTO label_events (candidate_id, class, by, at, mark)"
             " VALUES (1, 'juice', 'ana', '2026-01-01T00:00:01Z', 1)",
             "INSERT INTO sessions (started_at, by) VALUES ('2026-01-01T00:00:00Z', 'ana')",
             "UPDATE store_info SET event_mark = 1",
         ]
+        # the features blob is 7.0, 12.0, 42.0 as float64 little-endian (IEEE 754 by hand)
+        features = bytes.fromhex("0000000000001C4000000000000028400000000000004540")
         for statement in statements:
-            connection.execute(text(statement))
+            connection.execute(text(statement), {"features": features} if ":features" in statement else {})
     engine.dispose()
 
 
-def test_open_upgrades_a_first_revision_store_with_its_data(tmp_path: Path) -> None:
-    path = tmp_path / "old.db"
-    _store_at_first_revision(path)
-    assert "fits" not in table_rows(path)
-    with Store.open(path) as store:
+def test_open_upgrades_a_first_revision_store_with_its_data(store_at) -> None:
+    location = store_at("old.db")
+    _store_at_first_revision(location)
+    assert "fits" not in table_rows(location)
+    with Store.open(location) as store:
         assert store.check() == []
         assert store.classes == CLASSES
         assert store.feature_names == FEATURES
@@ -68,8 +84,7 @@ def test_open_upgrades_a_first_revision_store_with_its_data(tmp_path: Path) -> N
         assert store.sessions()[0]["by"] == "ana"
         assert store.last_fit() is None
         assert store.claim([record.id], "ana") == [record.id]
-    with closing(sqlite3.connect(path)) as connection:
-        assert connection.execute("SELECT version_num FROM alembic_version").fetchall() == [("0005",)]
+    assert _query(location, "SELECT version_num FROM alembic_version") == [("0005",)]
 
 
 def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:
@@ -97,16 +112,13 @@ def test_a_store_with_fits_goes_down_to_0003_and_back_keeping_its_data(store: St
     engine = store._engine
     with writing(engine) as connection:
         command.downgrade(alembic_config(connection), "0003")
-    with closing(sqlite3.connect(store.path)) as connection:
-        columns = [row[1] for row in connection.execute("PRAGMA table_info(fits)")]
-        assert "hyper_mode" not in columns
+    assert "hyper_mode" not in _columns(store.path, "fits")
+    assert "reason" not in _columns(store.path, "scores")
     with writing(engine) as connection:
         upgrade(connection, "head")
     after = table_rows(store.path)
     assert after == before
-    with closing(sqlite3.connect(store.path)) as connection:
-        assert connection.execute("SELECT COUNT(*) FROM fits WHERE hyper_mode IS NULL").fetchone()[0] \
-            == before["fits"]
+    assert _query(store.path, "SELECT COUNT(*) FROM fits WHERE hyper_mode IS NULL") == [(before["fits"],)]
     assert store.check() == []
 
 
@@ -122,8 +134,9 @@ def test_revision_ids_read_without_alembic_agree_with_alembic() -> None:
 
 def test_a_store_at_0004_with_data_upgrades_to_the_audit_tables(store: Store) -> None:
     """Revision 0005 (audits) on a store holding labels, fits and scores: down to 0004 (the audit
-    tables go) and up again in place; every label, skip, fit and score row is kept, and an
-    audit can be drawn afterwards (common practice for schema revisions, STYLE.md)."""
+    tables go) and up again in place when Store.open finds it older; every label, skip, fit and
+    score row is kept, and an audit can be drawn afterwards (common practice for schema
+    revisions, STYLE.md). On PostgreSQL too: a server store at 0004 upgrades to the head."""
     from labelq.loop import actions
 
     from .conftest import orchard
@@ -133,16 +146,35 @@ def test_a_store_at_0004_with_data_upgrades_to_the_audit_tables(store: Store) ->
     for key, grade in zip(keys[:4], ["export", "local", "juice", "export"]):
         actions.label(store, key, grade, "ana")
     store.skip(keys[5], "ana")
-    engine = store._engine
-    with writing(engine) as connection:
+    with writing(store._engine) as connection:
         command.downgrade(alembic_config(connection), "0004")
-    with closing(sqlite3.connect(store.path)) as connection:
-        tables = {r[0] for r in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+    tables = table_names(store.path)
     assert "audits" not in tables and "audit_items" not in tables
     before = {t: n for t, n in table_rows(store.path).items() if not t.startswith("audit")}
-    with writing(engine) as connection:
-        upgrade(connection, "head")
-    after = table_rows(store.path)
-    assert {t: n for t, n in after.items() if not t.startswith("audit")} == before
-    assert store.draw_audit(5, "ana", seed=1).n == 5
-    assert store.check() == []
+    with Store.open(store.path) as reopened:  # upgrades in place
+        after = table_rows(store.path)
+        assert {t: n for t, n in after.items() if not t.startswith("audit")} == before
+        assert reopened.draw_audit(5, "ana", seed=1).n == 5
+        assert reopened.check() == []
+        assert [r.key for r in reopened.current_labels()] == keys[:4]
+        assert reopened.last_fit().n_labels == 4
+
+
+def test_each_revision_goes_down_and_up_again(store: Store) -> None:
+    """Every revision's downgrade and upgrade run on this back end: down one revision at a
+    time to an empty database, then up one at a time; at the head the tables are the models
+    again (Alembic's compare_metadata is the reference)."""
+    scripts = ScriptDirectory.from_config(alembic_config())
+    order = [s.revision for s in scripts.walk_revisions()]  # head first
+    engine = store._engine
+    for expected in [*order[1:], None]:
+        with writing(engine, lock=None) as connection:
+            command.downgrade(alembic_config(connection), "-1")
+            assert current_revision(connection) == expected
+    assert table_names(store.path) <= {"alembic_version"}
+    for expected in reversed(order):
+        with writing(engine, lock=None) as connection:
+            command.upgrade(alembic_config(connection), "+1")
+            assert current_revision(connection) == expected
+    with reading(engine) as connection:
+        assert compare_metadata(MigrationContext.configure(connection), Base.metadata) == []
