@@ -261,6 +261,8 @@ def label(
     note: LabelNote = None,
     by: ByOption = None,
     relabel: Annotated[bool, typer.Option("--relabel", help="Replace an existing label.")] = False,
+    resolve: Annotated[bool, typer.Option(
+        "--resolve", help="Settle a dispute between labellers with this class.")] = False,
     strategy: StrategyOption = None,
     n: Annotated[int, typer.Option("-n", help="How many of the new queue to show.", min=1)] = 5,
     db: DbOption = None,
@@ -269,17 +271,25 @@ def label(
     """Record a label, refit, re-rank and print the new head of the queue."""
     with open_store(db) as store, render.progress_bar("refitting") as update:
         who = person(by)
-        actions.label(store, key, class_, who, note=note, relabel=relabel,
+        actions.label(store, key, class_, who, note=note, relabel=relabel, resolve=resolve,
                       strategy=strategy_name(strategy),
                       progress=lambda stage, d, t: update(d, t, stage))
+        disputed = store.is_disputed(key)
         from labelq.store.classes import resolve_class
 
         class_ = resolve_class(class_, store.classes)  # the stored name, as the store matched it
         queue = actions.next_queue(store, n, strategy_name(strategy), holder=who)
         if not json:
-            render.console().print(f"Labelled {key} as {class_}.", markup=False)
+            render.console().print(f"Labelled {key} as {class_}"
+                                   + (" (dispute settled)." if resolve else "."), markup=False)
+            if disputed:
+                render.console().print(
+                    f"{key} is now disputed: another labeller gave it another class. It leaves "
+                    f"the training set until someone settles it with `labelq label {key} CLASS "
+                    f"--resolve` (`labelq disputes` lists them).", markup=False)
         render_queue(store.classes, queue, json, echo={"labelled": {"key": key, "class": class_,
-                                                            "by": who, "note": note}})
+                                                            "by": who, "note": note,
+                                                            "disputed": disputed}})
 
 
 @app.command()
@@ -345,6 +355,9 @@ def audit(
     n: Annotated[Optional[int], typer.Option(
         "-n", help="Draw N more unlabelled candidates at random to audit.", min=1,
         show_default=False)] = None,
+    double: Annotated[bool, typer.Option(
+        "--double", help="With -n: each item is to be labelled by two labellers; status then "
+        "reports their agreement (Cohen's kappa).")] = False,
     seed: Annotated[Optional[int], typer.Option(
         "--seed", help="Seed of the draw (default: a fresh one, recorded with the audit).",
         show_default=False)] = None,
@@ -366,7 +379,8 @@ def audit(
         if n is not None:
             with render.progress_bar("refitting") as update:  # a draw needs a current model
                 drawn = audits.draw(store, n, person(by), seed,
-                                    progress=lambda stage, d, t: update(d, t, stage))
+                                    progress=lambda stage, d, t: update(d, t, stage),
+                                    double=double)
         doc = audits.report(store)
         snap = reports.status(store)["snapshot"] if not json else None
     if plot is not None:

@@ -246,6 +246,15 @@ def print_status(con: Console, doc) -> None:
             ("expected accuracy", f"{snap['expected_accuracy']:.3f} (the model's own estimate)"),
             ("agreement with previous fit", "-" if kappa is None else f"kappa {kappa:.3f}"),
         ]))
+    agreement = doc.get("agreement")
+    if agreement is not None:
+        con.print(f"Double labels: {', '.join(agreement['labellers'])} agreed on "
+                  f"{agreement['agreed']:.0%} of {agreement['n']} items; Cohen's kappa "
+                  f"{agreement['kappa']:.2f} (95% interval {agreement['low']:.2f}-"
+                  f"{agreement['high']:.2f}).", markup=False)
+    if doc.get("disputes"):
+        con.print(f"{doc['disputes']} disputed candidates are out of training until settled "
+                  "(`labelq disputes`).", markup=False)
     audit = doc.get("audit")
     if audit is not None:
         con.print(audit_line(audit, snap), markup=False)

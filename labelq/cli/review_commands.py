@@ -17,6 +17,7 @@ label_review = LazyModule("labelq.loop.label_review")
 def register(app: typer.Typer) -> None:
     """Add the review commands to ``app``."""
     app.command("labels")(labels)
+    app.command("disputes")(disputes)
 
 
 @user_errors
@@ -52,3 +53,30 @@ def labels(
     con.print(label_tables.labels_heading(view, disagree, by, len(view["rows"])), markup=False)
     con.print(label_tables.labels_table(view["rows"]))
     con.print(label_tables.labeller_line(view["per_labeller"]), style="dim", markup=False)
+
+
+@user_errors
+def disputes(db: DbOption = None, json: JsonOption = False):
+    """Candidates two labellers gave different classes; out of training until settled."""
+    with open_store(db) as store:
+        rows = store.disputes()
+    if json:
+        render.print_json(rows)
+        return
+    con = render.console()
+    if not rows:
+        con.print("No open disputes.")
+        return
+    from rich.table import Table
+
+    table = Table(show_edge=False, pad_edge=False, header_style="bold")
+    for name in ("key", "first", "second", "opened (UTC)"):
+        table.add_column(name, overflow="fold")
+    for r in rows:
+        table.add_row(r["key"], f"{r['first']['class']} ({r['first']['by']})",
+                      f"{r['second']['class']} ({r['second']['by']})", r["opened_at"])
+    con.print(f"{len(rows)} disputed {'candidate' if len(rows) == 1 else 'candidates'}, left "
+              "out of training until settled with `labelq label KEY CLASS --resolve`:",
+              markup=False)
+    con.print(table)
+

@@ -69,9 +69,10 @@ class StepResult:
 
 def label(store: Store, key: str, class_: str, by: str, note: Optional[str] = None,
           relabel: bool = False, strategy: Optional[str] = None, session_id=None,
-          progress: Progress = None) -> StepResult:
-    """Record a label (committed at once), then refit, re-rank and snapshot."""
-    event = store.label(key, class_, by, note=note, relabel=relabel)
+          progress: Progress = None, resolve: bool = False) -> StepResult:
+    """Record a label (committed at once), then refit, re-rank and snapshot. A second labeller's
+    different class opens a dispute; ``resolve`` settles one (labelq.store.disputes)."""
+    event = store.label(key, class_, by, note=note, relabel=relabel, resolve=resolve)
     store.release(by)
     return StepResult(event, ensure_fit(store, strategy, session_id=session_id, progress=progress))
 

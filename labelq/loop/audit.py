@@ -27,7 +27,7 @@ class NoModelForAuditError(LabelqError):
     """An audit was asked for before there is a model whose predictions it could test."""
 
 
-def draw(store, n: int, by: str, seed: Optional[int] = None, progress=None):
+def draw(store, n: int, by: str, seed: Optional[int] = None, progress=None, double=False):
     """Draw an audit of ``n`` unlabelled candidates (labelq.store.audits.AuditDraw), after
     bringing the model up to date (its predictions are what the audit tests). Before two
     classes have labels there is no model: an error, and nothing is written."""
@@ -39,7 +39,7 @@ def draw(store, n: int, by: str, seed: Optional[int] = None, progress=None):
         raise NoModelForAuditError(
             "an audit tests the model's predictions, and there is no model yet: label "
             "candidates of at least two classes first")
-    return store.draw_audit(n, by, seed)
+    return store.draw_audit(n, by, seed, double=double)
 
 
 def _figures(items, mark: Optional[int] = None) -> dict:
@@ -81,6 +81,24 @@ def report(store) -> Optional[dict]:
         "unscored": sum(i.label is not None and i.predicted is None for i in items),
     })
     return doc
+
+
+def agreement(store) -> Optional[dict]:
+    """Agreement of two labellers on the items of double audits (status --json key
+    ``agreement``): n items with two labellers' labels, Cohen's kappa with its standard error
+    and 95% interval (Fleiss, Cohen & Everitt 1969; labelq.review.kappa.kappa_interval), the
+    share of items they agreed on, and the pairs of labellers; None before any such item."""
+    from labelq.review.kappa import kappa_interval
+
+    pairs = store.double_pairs()
+    if not pairs:
+        return None
+    a = [p[0] for p in pairs]
+    b = [p[1] for p in pairs]
+    kappa, se, low, high = kappa_interval(a, b)
+    labellers = sorted({f"{p[2]}/{p[3]}" for p in pairs})
+    return {"n": len(pairs), "kappa": kappa, "se": se, "low": low, "high": high,
+            "agreed": sum(x == y for x, y in zip(a, b)) / len(pairs), "labellers": labellers}
 
 
 def as_of_marks(store, marks) -> list[Optional[dict]]:

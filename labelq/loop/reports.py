@@ -131,6 +131,8 @@ def status(store) -> dict:
         "advice": {"stop": advice.stop, "message": advice.message, "figures": advice.figures,
                    "flagged_classes": advice.flagged_classes},
         "audit": audit_doc,
+        "agreement": audit.agreement(store),
+        "disputes": len(store.disputes()),
         "caution": CAUTION,
     }
 

@@ -18,6 +18,7 @@ import numpy as np
 from sqlalchemy import Connection, text
 
 from labelq.store.blobs import decode_rows
+from labelq.store.sql import OPEN_DISPUTE
 from labelq.store.core import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP, StoreCore, class_names, json_object
 from labelq.store.errors import AuditError
 from labelq.store.timestamps import utc_now
@@ -53,7 +54,8 @@ class AuditItemRecord:
 class AuditsMixin(StoreCore):
     """Audit samples and their scoring records."""
 
-    def draw_audit(self, n: int, by: str, seed: Optional[int] = None) -> AuditDraw:
+    def draw_audit(self, n: int, by: str, seed: Optional[int] = None,
+                   double: bool = False) -> AuditDraw:
         """Draw ``n`` candidates uniformly at random, without replacement, from the unlabelled
         candidates that are in no audit yet; seeded (a fresh seed is drawn and recorded when
         ``seed`` is None)."""
@@ -72,9 +74,10 @@ class AuditsMixin(StoreCore):
             picks = np.random.default_rng(seed).choice(ids, size=n, replace=False)
             mark = connection.execute(text("SELECT event_mark FROM store_info WHERE id = 1")).scalar_one()
             audit_id = connection.execute(text(
-                "INSERT INTO audits (by, at, seed, opened_mark, drawn_from)"
-                " VALUES (:by, :at, :seed, :mark, :drawn_from) RETURNING id"),
-                {"by": by, "at": utc_now(), "seed": seed, "mark": mark, "drawn_from": len(ids)},
+                "INSERT INTO audits (by, at, seed, opened_mark, drawn_from, double)"
+                " VALUES (:by, :at, :seed, :mark, :drawn_from, :double) RETURNING id"),
+                {"by": by, "at": utc_now(), "seed": seed, "mark": mark, "drawn_from": len(ids),
+                 "double": bool(double)},
             ).scalar_one()
             connection.execute(text(
                 "INSERT INTO audit_items (candidate_id, audit_id, position)"
@@ -89,7 +92,9 @@ class AuditsMixin(StoreCore):
             rows = connection.execute(text(
                 "SELECT a.candidate_id, c.key, a.audit_id, a.position, a.fit_id, a.predicted,"
                 " a.p_top, a.probabilities, a.scored_mark, (SELECT l.class FROM label_events l"
-                f" WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL} ORDER BY l.id DESC LIMIT 1)"
+                f" WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL} AND NOT EXISTS (SELECT 1"
+                f" FROM disputes d WHERE d.candidate_id = a.candidate_id AND {OPEN_DISPUTE})"
+                " ORDER BY l.id DESC LIMIT 1)"
                 " FROM audit_items a JOIN candidates c ON c.id = a.candidate_id"
                 " ORDER BY a.audit_id, a.position")).all()
         out = []
@@ -106,8 +111,12 @@ class AuditsMixin(StoreCore):
         with self._read() as connection:
             rows = connection.execute(text(
                 "SELECT a.candidate_id, c.key, c.meta FROM audit_items a"
-                " JOIN candidates c ON c.id = a.candidate_id WHERE NOT EXISTS"
-                f" (SELECT 1 FROM label_events l WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL})"
+                " JOIN candidates c ON c.id = a.candidate_id JOIN audits u ON u.id = a.audit_id"
+                " WHERE (NOT EXISTS (SELECT 1 FROM label_events l WHERE l.candidate_id ="
+                f" a.candidate_id AND {LIVE_LABEL}) OR (u.double AND CAST(:holder AS TEXT) IS NOT NULL"
+                " AND NOT EXISTS (SELECT 1 FROM label_events l WHERE l.candidate_id = a.candidate_id"
+                f" AND {LIVE_LABEL} AND l.by = :holder) AND (SELECT COUNT(DISTINCT l.by) FROM"
+                f" label_events l WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL}) < 2))"
                 " AND NOT EXISTS (SELECT 1 FROM claims k WHERE k.candidate_id = a.candidate_id"
                 " AND k.expires_at > :now AND (CAST(:holder AS TEXT) IS NULL OR k.holder <> :holder))"
                 " ORDER BY a.audit_id, a.position"), {"now": now, "holder": holder}).all()

@@ -8,6 +8,8 @@ from sqlalchemy import Connection, text
 
 from labelq.store.audits import record_prediction
 from labelq.store.core import CURRENT_LABEL_IDS, LIVE_LABEL, LIVE_SKIP, StoreCore, candidate_id, class_names
+from labelq.store.disputes import (DisputedError, NotDisputedError, latest_live_label,
+                                   open_dispute, open_new_dispute, settle)
 from labelq.store.engine import bump_event_mark
 from labelq.store.classes import resolve_class
 from labelq.store.errors import AlreadyLabelledError, NothingToUndoError
@@ -35,22 +37,37 @@ class EventsMixin(StoreCore):
             ).all()
         return [LabelRecord(*row) for row in rows]
 
-    def label(self, key: str, class_: str, by: str, note: Optional[str] = None, relabel: bool = False) -> int:
+    def label(self, key: str, class_: str, by: str, note: Optional[str] = None, relabel: bool = False,
+              resolve: bool = False) -> int:
         """Label candidate ``key`` as ``class_``; the new event id.
 
         ``class_`` is matched by labelq.store.classes.resolve_class (exact name, then case-insensitive,
         then its number 1..C) and the stored name is recorded. A labelled candidate raises
         AlreadyLabelledError unless ``relabel``, when the new event supersedes the old one (an undo
         brings the old one back). A skip of the candidate is retracted.
+
+        Teams (labelq.store.disputes): a labeller other than the one who gave the current label
+        adds a second opinion without ``relabel``; when its class differs, the candidate becomes
+        disputed and leaves the training set. A disputed candidate takes only a resolving label
+        (``resolve``), which settles the dispute; ``resolve`` on an undisputed one is an error.
         """
         with self._write() as connection:
             cid = candidate_id(connection, key)
             class_ = resolve_class(class_, class_names(connection))
-            current = _current_class(connection, cid)
-            if current is not None and not relabel:
-                raise AlreadyLabelledError(
-                    f"candidate {key!r} is already labelled {current!r}; use --relabel to replace the label"
-                )
+            dispute = open_dispute(connection, cid)
+            latest = latest_live_label(connection, cid)
+            second_opinion = False
+            if resolve and dispute is None:
+                raise NotDisputedError(f"candidate {key!r} is not disputed; label it without --resolve")
+            if dispute is not None and not resolve:
+                raise DisputedError(
+                    f"candidate {key!r} is disputed; settle it with `labelq label {key} CLASS --resolve`")
+            if latest is not None and not (relabel or resolve):
+                if latest.by == by:
+                    raise AlreadyLabelledError(
+                        f"candidate {key!r} is already labelled {latest.class_!r}; use --relabel to "
+                        "replace the label")
+                second_opinion = True
             mark = bump_event_mark(connection)
             at = utc_now()
             event_id = connection.execute(
@@ -64,6 +81,10 @@ class EventsMixin(StoreCore):
             if skip_id is not None:
                 _retract(connection, "skip_events", skip_id, cid, by, at, mark)
             record_prediction(connection, cid, mark)  # audit items: the prediction before the label
+            if resolve:
+                settle(connection, dispute, event_id)
+            elif second_opinion and latest.class_ != class_:
+                open_new_dispute(connection, cid, latest.id, event_id, at)
         return event_id
 
     def skip(self, key: str, by: str) -> int:
@@ -162,10 +183,18 @@ class EventsMixin(StoreCore):
         Events after ``mark`` (labels and retractions alike) are ignored, so this replays the
         label history: ``labels_as_of(event_mark())`` equals ``current_labels()``.
         """
+        disputed_then = (  # an open dispute as of :m (see OPEN_DISPUTE)
+            "SELECT 1 FROM disputes d JOIN label_events s2 ON s2.id = d.second_id"
+            " WHERE d.candidate_id = l.candidate_id AND s2.mark <= :m AND NOT EXISTS (SELECT 1 FROM"
+            " label_events r1 WHERE (r1.retracts_id = d.first_id OR r1.retracts_id = d.second_id)"
+            " AND r1.mark <= :m) AND (d.resolved_id IS NULL OR NOT EXISTS (SELECT 1 FROM"
+            " label_events v WHERE v.id = d.resolved_id AND v.mark <= :m AND NOT EXISTS (SELECT 1"
+            " FROM label_events r3 WHERE r3.retracts_id = v.id AND r3.mark <= :m)))"
+        )
         live_then = (
             "SELECT MAX(l.id) FROM label_events l WHERE l.mark <= :m AND l.retracts_id IS NULL"
             " AND NOT EXISTS (SELECT 1 FROM label_events r WHERE r.retracts_id = l.id AND r.mark <= :m)"
-            " GROUP BY l.candidate_id"
+            f" AND NOT EXISTS ({disputed_then}) GROUP BY l.candidate_id"
         )
         with self._read() as connection:
             rows = connection.execute(

@@ -10,6 +10,7 @@ from typing import Any, Optional
 
 from sqlalchemy import (
     JSON,
+    Boolean,
     CheckConstraint,
     Float,
     ForeignKey,
@@ -19,6 +20,7 @@ from sqlalchemy import (
     String,
     Text,
 )
+from sqlalchemy import false
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 
 NAMING_CONVENTION = {
@@ -209,6 +211,8 @@ class Audit(Base):
     """The store's event mark when the sample was drawn (labels after it count for interleaving)."""
     drawn_from: Mapped[int] = mapped_column(Integer)
     """How many unlabelled candidates the sample was drawn from."""
+    double: Mapped[bool] = mapped_column(Boolean, server_default=false())
+    """Each item is to be labelled by two labellers (their agreement: Cohen's kappa)."""
 
 
 class AuditItem(Base):
@@ -227,4 +231,19 @@ class AuditItem(Base):
     probabilities: Mapped[Optional[bytes]] = mapped_column(LargeBinary)
     scored_mark: Mapped[Optional[int]] = mapped_column(Integer)
     """Event mark of the first label of the item (when the prediction was recorded)."""
+
+
+
+class Dispute(Base):
+    """Two labellers' different classes for one candidate; open while ``resolved_id`` is None
+    and both label events are live. An open dispute keeps the candidate out of training."""
+
+    __tablename__ = "disputes"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), index=True)
+    first_id: Mapped[int] = mapped_column(ForeignKey("label_events.id"))
+    second_id: Mapped[int] = mapped_column(ForeignKey("label_events.id"))
+    resolved_id: Mapped[Optional[int]] = mapped_column(ForeignKey("label_events.id"))
+    at: Mapped[str] = mapped_column(String)
 

@@ -92,10 +92,14 @@ class QuickReader:
         return QuickFit(row[0], row[1], row[2], row[3], json.loads(row[4]) if row[4] else {})
 
     def audit_waiting(self) -> bool:
-        """True when an audit item has no label yet (the full path interleaves those)."""
+        """True when an audit item has no label yet, or an item of a double audit fewer than
+        two labellers (the full path interleaves those)."""
         return self._db.execute(
-            "SELECT 1 FROM audit_items a WHERE NOT EXISTS (SELECT 1 FROM label_events l"
-            f" WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL}) LIMIT 1").fetchone() is not None
+            "SELECT 1 FROM audit_items a JOIN audits u ON u.id = a.audit_id WHERE NOT EXISTS"
+            " (SELECT 1 FROM label_events l WHERE l.candidate_id = a.candidate_id"
+            f" AND {LIVE_LABEL}) OR (u.double AND (SELECT COUNT(DISTINCT l.by) FROM label_events l"
+            f" WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL}) < 2) LIMIT 1"
+        ).fetchone() is not None
 
     def queue(self, limit: int, holder: Optional[str]) -> list[dict]:
         """The head of the last fit's queue, as `Store.queue` reads it (claims by others left out)."""

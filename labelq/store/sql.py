@@ -24,8 +24,19 @@ retracts_id index (which matches nearly every row) instead of the candidate_id i
 reads it as the identity on integers (its planner does not need the hint).
 """
 
-CURRENT_LABEL_IDS = f"SELECT MAX(l.id) FROM label_events l WHERE {LIVE_LABEL} GROUP BY l.candidate_id"
-"""SQL yielding the id of every candidate's current label event."""
+OPEN_DISPUTE = (
+    "NOT EXISTS (SELECT 1 FROM label_events r WHERE r.retracts_id = d.first_id"
+    " OR r.retracts_id = d.second_id) AND (d.resolved_id IS NULL OR EXISTS"
+    " (SELECT 1 FROM label_events r2 WHERE r2.retracts_id = d.resolved_id))"
+)
+"""SQL condition on ``disputes d``: the dispute is open (both its label events live, and no live
+resolving label); see labelq.store.disputes."""
+
+CURRENT_LABEL_IDS = (
+    f"SELECT MAX(l.id) FROM label_events l WHERE {LIVE_LABEL} AND NOT EXISTS (SELECT 1 FROM"
+    f" disputes d WHERE d.candidate_id = l.candidate_id AND {OPEN_DISPUTE}) GROUP BY l.candidate_id"
+)
+"""SQL yielding the id of every candidate's current label event (disputed candidates have none)."""
 
 LAST_FIT = "(SELECT MAX(id) FROM fits)"
 """SQL for the id of the last fit. Only its scores are kept, so full reads filter on ``+fit_id``

@@ -13,6 +13,7 @@ from sqlalchemy import Connection, inspect, text
 
 from labelq.store.audits import AuditsMixin
 from labelq.store.check import CheckMixin
+from labelq.store.disputes import DisputesMixin
 from labelq.store.claims import ClaimsMixin
 from labelq.store.core import class_names
 from labelq.store.engine import make_engine, reading, writing
@@ -42,7 +43,7 @@ Location = Union[str, os.PathLike[str], "URL"]
 
 
 class Store(PoolMixin, EventsMixin, ItemHistoryMixin, SessionsMixin, FitsMixin, ClaimsMixin, AuditsMixin,
-            CheckMixin):
+            DisputesMixin, CheckMixin):
     """A labelq store; use :meth:`create` or :meth:`open`, and close it (or use ``with``)."""
 
     @classmethod

@@ -37,7 +37,7 @@ def _columns(location, table: str) -> list[str]:
 
 def test_there_is_exactly_one_head() -> None:
     heads = ScriptDirectory.from_config(alembic_config()).get_heads()
-    assert heads == [head_revision()] == ["0005"]
+    assert heads == [head_revision()] == ["0006"]
 
 
 def test_revisions_build_exactly_the_models(store: Store) -> None:
@@ -84,7 +84,7 @@ def test_open_upgrades_a_first_revision_store_with_its_data(store_at) -> None:
         assert store.sessions()[0]["by"] == "ana"
         assert store.last_fit() is None
         assert store.claim([record.id], "ana") == [record.id]
-    assert _query(location, "SELECT version_num FROM alembic_version") == [("0005",)]
+    assert _query(location, "SELECT version_num FROM alembic_version") == [("0006",)]
 
 
 def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:
@@ -150,10 +150,12 @@ def test_a_store_at_0004_with_data_upgrades_to_the_audit_tables(store: Store) ->
         command.downgrade(alembic_config(connection), "0004")
     tables = table_names(store.path)
     assert "audits" not in tables and "audit_items" not in tables
-    before = {t: n for t, n in table_rows(store.path).items() if not t.startswith("audit")}
+    new_tables = ("audits", "audit_items", "disputes")  # revisions 0005 and 0006
+    assert not set(new_tables) & tables
+    before = {t: n for t, n in table_rows(store.path).items() if t not in new_tables}
     with Store.open(store.path) as reopened:  # upgrades in place
         after = table_rows(store.path)
-        assert {t: n for t, n in after.items() if not t.startswith("audit")} == before
+        assert {t: n for t, n in after.items() if t not in new_tables} == before
         assert reopened.draw_audit(5, "ana", seed=1).n == 5
         assert reopened.check() == []
         assert [r.key for r in reopened.current_labels()] == keys[:4]
