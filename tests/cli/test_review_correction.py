@@ -211,7 +211,9 @@ def test_undo_key_with_nothing_to_take_back_changes_nothing(reviewed, user_error
 def test_labelling_twice_names_relabel(reviewed, user_error):
     cli, keys, truth = reviewed
     before = cli.dump()
-    user_error(cli("label", keys[0], "benign"),
+    # the same labeller (ana) labelling again; another labeller would add a second opinion
+    # (issue 14, tests/cli/test_teams.py)
+    user_error(cli("label", keys[0], "benign", "--by", "ana"),
                f"candidate {keys[0]!r} is already labelled {truth[keys[0]]!r}; use --relabel to "
                f"replace the label")
     assert cli.dump() == before
