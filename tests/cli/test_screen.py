@@ -62,7 +62,8 @@ def test_rows_held_for_another_labeller_are_counted(cancer_store, monkeypatch):
 def test_label_json_echoes_what_was_recorded(cancer_store):
     head = cancer_store.json("next", "-n", "1")["queue"][0]["key"]
     doc = cancer_store.json("label", head, "benign", "--by", "ana", "--note", "firm")
-    assert doc["labelled"] == {"key": head, "class": "benign", "by": "ana", "note": "firm"}
+    assert doc["labelled"] == {"key": head, "class": "benign", "by": "ana", "note": "firm",
+                               "disputed": False}
     assert "queue" in doc
 
 

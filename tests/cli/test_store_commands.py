@@ -22,7 +22,7 @@ def test_help_lists_every_command(cli):
     listed = {line.split()[0] for line in result.output.split("Commands:")[1].splitlines()
               if line.startswith("  ") and line.split()}
     assert listed == {"init", "import", "next", "show", "label", "labels", "skip", "undo",
-                      "session", "status", "audit", "history", "export", "simulate", "demo",
+                      "session", "status", "audit", "disputes", "history", "export", "simulate", "demo",
                       "check", "rebuild"}
 
 

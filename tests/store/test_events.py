@@ -40,12 +40,13 @@ def test_current_labels_are_ordered_by_event(pool: Store) -> None:
 
 
 def test_labelling_twice_needs_relabel(pool: Store) -> None:
+    # the same labeller; another labeller adds a second opinion (tests/store/test_disputes.py)
     pool.label(A, "export", by="ana")
     before = table_rows(pool.path)
     with pytest.raises(AlreadyLabelledError, match=f"'{A}' is already labelled 'export'"):
-        pool.label(A, "juice", by="ben")
+        pool.label(A, "juice", by="ana")
     assert table_rows(pool.path) == before
-    pool.label(A, "juice", by="ben", relabel=True)
+    pool.label(A, "juice", by="ana", relabel=True)
     assert _current(pool) == {A: "juice"}
 
 

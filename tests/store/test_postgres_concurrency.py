@@ -139,8 +139,9 @@ def test_four_processes_label_at_once_without_loss_or_duplicates(pg_database, ca
 
 def test_a_first_label_is_checked_after_the_write_lock(pg_database, cancer):
     """While one transaction holds the events lock and has labelled a candidate, a second
-    labeller of the same candidate waits, then finds it labelled (AlreadyLabelledError), never
-    a second "first label"."""
+    attempt by the same labeller (say, from a second terminal) waits, then finds it labelled
+    (AlreadyLabelledError), never a second "first label". (Another labeller would add a second
+    opinion, tests/store/test_disputes.py.)"""
     rows = _cancer_store(pg_database, cancer, 10)
     key, cls = rows[0]
     outcome = []
@@ -149,7 +150,7 @@ def test_a_first_label_is_checked_after_the_write_lock(pg_database, cancer):
 
         def label_too():
             try:
-                outcome.append(second.label(key, cls, "ben"))
+                outcome.append(second.label(key, cls, "ana"))
             except AlreadyLabelledError as error:
                 outcome.append(error)
 
