@@ -58,6 +58,16 @@ def _as_class(answer: str, classes) -> str | None:
         return None
 
 
+def _why_not(answer: str, classes) -> str:
+    """The class resolver's own words for an answer that names no class (with "did you mean"
+    when a class is close), else the answer itself."""
+    try:
+        resolve_class(answer, classes)
+    except UnknownClassError as error:
+        return str(error)
+    return repr(answer)
+
+
 def run_session(store, by: str, strategy=None, con: Console | None = None) -> dict:
     """The interactive loop; returns the summary it prints at the end. ``con`` receives the
     cards, prompts and closing line (default stdout; `session --json` passes stderr so that
@@ -107,7 +117,8 @@ def run_session(store, by: str, strategy=None, con: Console | None = None) -> di
                               f"this sitting{_entropy_change(before, now)}", markup=False)
                     before = now
                 else:
-                    con.print(f"not understood: {answer!r}; type {HELP}", markup=False)
+                    con.print(f"not understood: {_why_not(answer, classes)}; type {HELP}",
+                              markup=False)
             except LabelqError as exc:
                 con.print(f"[bold]note:[/bold] {escape(str(exc))}")
     finally:

@@ -28,7 +28,9 @@ def upgrade() -> None:
         sa.Column("resolved_id", sa.Integer(), sa.ForeignKey("label_events.id"), nullable=True),
         sa.Column("at", sa.String(), nullable=False),
     )
-    with op.batch_alter_table("audits") as batch:
+    # ALTER TABLE ... ADD COLUMN in place: rebuilding `audits` in batch mode would drop a table
+    # that `audit_items` references, which the store's foreign-key checks refuse
+    with op.batch_alter_table("audits", recreate="never") as batch:
         batch.add_column(sa.Column("double", sa.Boolean(), nullable=False,
                                    server_default=sa.false()))
 

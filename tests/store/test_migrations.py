@@ -180,3 +180,33 @@ def test_each_revision_goes_down_and_up_again(store: Store) -> None:
             assert current_revision(connection) == expected
     with reading(engine) as connection:
         assert compare_metadata(MigrationContext.configure(connection), Base.metadata) == []
+
+
+def test_a_store_at_0005_with_an_audit_upgrades_to_the_dispute_tables(store: Store) -> None:
+    """Revision 0006 (disputes, double audits) on a store holding an audit with a scored item:
+    down to 0005 and up again through Store.open; the audit's rows are kept and its `double`
+    flag comes back false (common practice for schema revisions, STYLE.md). A rebuild of the
+    referenced `audits` table in SQLite's batch mode would break the foreign key of
+    `audit_items`; the revision alters it in place."""
+    from labelq.loop import actions
+
+    from .conftest import orchard
+
+    keys, X, meta = orchard(40)
+    store.add_candidates(keys, X, meta, FEATURES)
+    for key, grade in zip(keys[:4], ["export", "local", "juice", "export"]):
+        actions.label(store, key, grade, "ana")
+    store.draw_audit(5, "ana", seed=3)
+    item = store.audit_items()[0]
+    actions.label(store, item.key, "juice", "ana")
+    with writing(store._engine) as connection:
+        command.downgrade(alembic_config(connection), "0005")
+    assert "disputes" not in table_names(store.path)
+    before = {t: n for t, n in table_rows(store.path).items() if t != "disputes"}
+    with Store.open(store.path) as reopened:
+        after = table_rows(store.path)
+        assert {t: n for t, n in after.items() if t != "disputes"} == before
+        assert [i.key for i in reopened.audit_items()] == [i.key for i in store.audit_items()]
+        assert reopened.audit_items()[0].predicted is not None
+        assert reopened.double_pairs() == []
+        assert reopened.check() == []
