@@ -382,7 +382,7 @@ def audit(
                                     progress=lambda stage, d, t: update(d, t, stage),
                                     double=double)
         doc = audits.report(store)
-        snap = reports.status(store)["snapshot"] if not json else None
+        snap = None if json else reports.latest_snapshot(store)
     if plot is not None:
         if not doc or not doc["n"]:
             raise BadOption("no audit item is scored yet, so there is no reliability diagram "

@@ -137,6 +137,14 @@ def status(store) -> dict:
     }
 
 
+def latest_snapshot(store) -> Optional[dict]:
+    """The last fit's snapshot as `status` shows it (key ``snapshot``), or None."""
+    last = store.last_fit()
+    if last is None:
+        return None
+    return _snapshot_doc(next((s for s in store.snapshots() if s["fit_id"] == last.id), None))
+
+
 def _snapshot_doc(snap) -> Optional[dict]:
     if snap is None:
         return None
