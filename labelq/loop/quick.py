@@ -35,6 +35,8 @@ def quick_next_queue(path, n: int, strategy: Optional[str],
         cold = bool(fit.info.get("cold_start"))
         for _ in range(CLAIM_ATTEMPTS):
             found = reader.queue(n, holder)
+            if found is None:
+                return None
             if not (holder and found) or reader.claim(found[0]["candidate_id"], holder, CLAIM_SECONDS):
                 break
         skipped = reader.skipped([r["candidate_id"] for r in found])

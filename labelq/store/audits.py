@@ -152,10 +152,25 @@ def record_prediction(connection: Connection, cid: int, mark: int) -> None:
     """Inside the label's transaction: when ``cid`` is an audit item labelled for the first time,
     copy the last (non-cold-start) fit's prediction for it. A fit that is older than this label
     never saw it, so the record is the model's prediction before the label."""
+    waiting = connection.execute(text(
+        "SELECT 1 FROM audit_items WHERE candidate_id = :cid AND scored_mark IS NULL"),
+        {"cid": cid}).scalar()
+    fit_id = connection.execute(text(
+        "SELECT id FROM fits WHERE id = (SELECT MAX(id) FROM fits) AND strategy <> 'cold-start'"
+    )).scalar()
+    if waiting is None or fit_id is None:
+        return
+    from labelq.store.blockio import score_records
+
+    n_classes = connection.execute(text("SELECT COUNT(*) FROM classes")).scalar_one()
+    records = score_records(connection, fit_id, n_classes, [cid])
+    if records is None:
+        return
+    row = records[0]
+    proba = row["probabilities"].astype("<f8")
+    predicted = int(row["predicted"])
     connection.execute(text(
-        "UPDATE audit_items SET fit_id = sc.fit_id, predicted = sc.predicted, p_top = sc.p_top,"
-        " probabilities = sc.probabilities, scored_mark = :mark"
-        " FROM scores sc JOIN fits f ON f.id = sc.fit_id"
-        " WHERE audit_items.candidate_id = :cid AND audit_items.scored_mark IS NULL"
-        " AND sc.candidate_id = :cid AND sc.fit_id = (SELECT MAX(id) FROM fits)"
-        " AND f.strategy <> 'cold-start'"), {"cid": cid, "mark": mark})
+        "UPDATE audit_items SET fit_id = :fit, predicted = :predicted, p_top = :p_top,"
+        " probabilities = :proba, scored_mark = :mark WHERE candidate_id = :cid"),
+        {"fit": fit_id, "predicted": predicted, "p_top": float(proba[predicted]),
+         "proba": proba.tobytes(), "mark": mark, "cid": cid})

@@ -1,6 +1,9 @@
 """Consistency checks of a store, reported as one-line problems."""
 
+import numpy as np
 from sqlalchemy import Connection, text
+
+from labelq.store.columns import block_problem, score_dtype
 
 from labelq.store.core import StoreCore
 from labelq.store.engine import is_sqlite
@@ -58,26 +61,65 @@ def _integrity_problems(connection: Connection) -> list[str]:
 
 
 def _feature_problems(connection: Connection) -> list[str]:
+    """Every feature block intact (size and CRC-32), and every candidate in exactly one block."""
     width = connection.execute(text("SELECT COUNT(*) FROM feature_schema")).scalar_one()
-    bad = connection.execute(
-        text("SELECT COUNT(*) FROM candidates WHERE length(features) <> :size"), {"size": 8 * width}
-    ).scalar_one()
-    return [f"{bad} candidates do not have {width} float64 features"] if bad else []
+    problems, held = [], []
+    for block_id, n_rows, data, crc in connection.execute(
+            text("SELECT id, n_rows, data, checksum FROM feature_blocks ORDER BY first_id")):
+        problem = block_problem(data, n_rows * (8 + 8 * width), crc)
+        if problem is not None:
+            problems.append(f"feature block {block_id} is damaged ({problem}); features are"
+                            " primary data: restore the store from a backup or import again")
+            continue
+        held.append(np.frombuffer(bytes(data), dtype="<i8", count=n_rows))
+    stored = np.sort(np.concatenate(held)) if held else np.zeros(0, dtype=np.int64)
+    ids = np.fromiter(connection.execute(text("SELECT id FROM candidates ORDER BY id")).scalars(),
+                      dtype=np.int64)
+    twice = int((np.diff(stored) == 0).sum())
+    missing = int((~np.isin(ids, stored)).sum())
+    stray = int((~np.isin(stored, ids)).sum())
+    if twice:
+        problems.append(f"{twice} candidates have features in more than one feature block")
+    if missing and len(problems) == 0:
+        problems.append(f"{missing} candidates have no features in any feature block")
+    if stray:
+        problems.append(f"{stray} rows of feature blocks belong to no candidate")
+    return problems
 
 
 def _score_problems(connection: Connection) -> list[str]:
+    """The last fit's score blocks intact and covering the pool it saw; the head table its own."""
+    last = connection.execute(text("SELECT MAX(id) FROM fits")).scalar()
     stray = connection.execute(
-        text("SELECT COUNT(*) FROM scores WHERE fit_id <> COALESCE((SELECT MAX(id) FROM fits), -1)")
+        text("SELECT COUNT(*) FROM scores WHERE fit_id <> :fit"), {"fit": -1 if last is None else last}
     ).scalar_one()
-    missing = connection.execute(
-        text(
-            "SELECT COUNT(*) FROM candidates c WHERE c.added_mark <= (SELECT event_mark FROM fits"
-            " WHERE id = (SELECT MAX(id) FROM fits)) AND NOT EXISTS (SELECT 1 FROM scores s"
-            " WHERE s.candidate_id = c.id AND s.fit_id = (SELECT MAX(id) FROM fits))"
-        )
-    ).scalar_one()
+    stray_blocks = connection.execute(
+        text("SELECT COUNT(*) FROM score_blocks WHERE fit_id <> :fit"),
+        {"fit": -1 if last is None else last}).scalar_one()
     problems = [f"{stray} scores do not belong to the last fit"] if stray else []
-    if missing:
+    if stray_blocks:
+        problems.append(f"{stray_blocks} score blocks do not belong to the last fit")
+    if last is None:
+        return problems
+    n_classes = connection.execute(text("SELECT COUNT(*) FROM classes")).scalar_one()
+    size = score_dtype(n_classes).itemsize
+    held, damaged = [], 0
+    for block, n_rows, data, crc in connection.execute(
+            text("SELECT block, n_rows, data, checksum FROM score_blocks WHERE fit_id = :fit"
+                 " ORDER BY block"), {"fit": last}):
+        problem = block_problem(data, n_rows * size, crc)
+        if problem is not None:
+            damaged += 1
+            problems.append(f"score block {block} of the last fit is damaged ({problem});"
+                            " `labelq rebuild` remakes it")
+            continue
+        held.append(np.frombuffer(bytes(data), dtype=score_dtype(n_classes))["candidate_id"])
+    scored = np.concatenate(held) if held else np.zeros(0, dtype=np.int64)
+    seen = np.fromiter(connection.execute(text(
+        "SELECT c.id FROM candidates c WHERE c.added_mark <= (SELECT event_mark FROM fits"
+        " WHERE id = :fit) ORDER BY c.id"), {"fit": last}).scalars(), dtype=np.int64)
+    missing = int((~np.isin(seen, scored)).sum())
+    if missing and not damaged:
         problems.append(f"{missing} candidates have no score under the last fit")
     return problems
 

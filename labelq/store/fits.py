@@ -2,29 +2,30 @@
 
 from collections.abc import Iterator, Sequence
 from itertools import repeat
-from typing import Any, Optional
+from typing import Any
 
 import numpy as np
 from sqlalchemy import Connection, Row, bindparam, insert, select, text
 
 from labelq.store.blobs import decode_rows, row_blobs
-from labelq.store.core import StoreCore, class_names, in_given_order, json_object, rows_by_id
-from labelq.store.engine import DERIVED, bulk_insert, fetch_chunks
+from labelq.store.blockio import (
+    delete_scores,
+    insert_scores,
+    score_chunks,
+    score_records,
+)
+from labelq.store.columns import score_dtype
+from labelq.store.core import StoreCore, class_names, json_object, rows_by_id
+from labelq.store.engine import DERIVED, bulk_insert
 from labelq.store.errors import UnknownSessionError
 from labelq.store.models import Fit, Snapshot
 from labelq.store.records import FitRecord, ScoreChunk, ScoreRow
-from labelq.store.sql import LAST_FIT, queue_sql
+from labelq.store.sql import HEAD_COUNT, LAST_FIT, LIVE_LABEL, QUEUE_HEAD_ROWS, queue_sql
 from labelq.store.timestamps import utc_now
 
 _INSERT_COLUMNS = ("candidate_id", "fit_id", "probabilities", "predicted", "p_top", "p_low", "p_high",
                    "entropy", "margin", "bald", "priority", "rank", "reason")
-_SCORE_COLUMNS = (
-    "candidate_id, probabilities, predicted, p_top, p_low, p_high, entropy, margin, bald, priority, rank"
-)
-_WRITE_CHUNK = 50_000
-"""Score rows handed to one bulk insert."""
 _LAST_FIT = LAST_FIT
-_LAST_FIT_SCORES = f"FROM scores WHERE fit_id = {_LAST_FIT} AND candidate_id IN ({{ids}})"
 
 
 class FitsMixin(StoreCore):
@@ -43,10 +44,11 @@ class FitsMixin(StoreCore):
         margin: np.ndarray,
         bald: np.ndarray,
         priority: np.ndarray,
-        rank: Sequence[Optional[int]],
+        rank: Sequence[int | None],
         snapshot: dict[str, Any],
-        keep_models: Optional[int] = None,
-        reasons: Optional[Sequence[Optional[str]]] = None,
+        keep_models: int | None = None,
+        reasons: Sequence[str | None] | None = None,
+        exact: np.ndarray | None = None,
     ) -> int:
         """Store a fit, replace all scores by this fit's (N candidates) and add its snapshot; the fit id.
 
@@ -58,7 +60,12 @@ class FitsMixin(StoreCore):
         optionally agreement_kappa. With ``keep_models``, only the newest that many fits keep their
         model (the rest are derived data and can be remade by a rebuild). ``reasons`` (N,) says why
         each row of the head of the queue is there (None elsewhere). ``fit`` may also hold
-        settings, hyper_mode and learnt_at (how the fit was made).
+        settings, hyper_mode and learnt_at (how the fit was made). ``exact`` (N,) bool marks the
+        rows whose latent variance was computed exactly (default all; labelq.policy.bounded).
+
+        Every candidate's scores go into the fit's score blocks (labelq.store.columns; ids must
+        be ascending); ranks 1 to QUEUE_HEAD_ROWS also go into the `scores` table, which `next`
+        reads.
         """
         n = len(candidate_ids)
         probabilities = np.asarray(probabilities, dtype=np.float64)
@@ -82,6 +89,7 @@ class FitsMixin(StoreCore):
                 .returning(Fit.id)
             ).scalar_one()
             connection.execute(text("DELETE FROM scores"))
+            delete_scores(connection)
             if keep_models is not None:
                 # the newest fits by id (ids of a server's sequence may have gaps)
                 connection.execute(
@@ -89,23 +97,37 @@ class FitsMixin(StoreCore):
                          " (SELECT id FROM fits ORDER BY id DESC LIMIT :keep)"),
                     {"keep": keep_models},
                 )
-            rank = np.asarray(rank, dtype=object)
             ids = np.asarray(candidate_ids, dtype=np.int64)
-            for start in range(0, n, _WRITE_CHUNK):
-                # chunked so that the Python rows built for the bulk insert stay small on big pools
-                part = slice(start, start + _WRITE_CHUNK)
-                bulk_insert(
-                    connection, "scores", _INSERT_COLUMNS,
-                    zip(
-                        ids[part].tolist(),
-                        repeat(fit_id),
-                        row_blobs(probabilities[part]),
-                        columns[0][part].astype(np.int64).tolist(),
-                        *(column[part].astype(np.float64).tolist() for column in columns[1:]),
-                        [None if r is None or r < 0 else int(r) for r in rank[part].tolist()],
-                        reasons[part],
-                    ),
-                )
+            rank = _rank_array(rank)
+            records = np.zeros(n, dtype=score_dtype(n_classes))
+            records["candidate_id"] = ids
+            records["probabilities"] = probabilities
+            for name, column in zip(("predicted", "p_low", "p_high", "entropy", "margin", "bald",
+                                     "priority"), (columns[0], *columns[2:])):
+                records[name] = column
+            records["rank"] = rank
+            records["exact"] = 1 if exact is None else np.asarray(exact, dtype=bool)
+            if n:
+                order = np.argsort(ids, kind="stable")  # blocks hold ascending ids
+                if (np.diff(ids[order]) == 0).any():
+                    raise ValueError("candidate ids must be distinct")
+                insert_scores(connection, fit_id, records[order])
+            head = np.flatnonzero((rank >= 1) & (rank <= QUEUE_HEAD_ROWS))
+            head = head[np.argsort(rank[head], kind="stable")]
+            p_top = columns[1]
+            bulk_insert(
+                connection, "scores", _INSERT_COLUMNS,
+                zip(
+                    ids[head].tolist(),
+                    repeat(fit_id),
+                    row_blobs(probabilities[head]),
+                    columns[0][head].astype(np.int64).tolist(),
+                    np.asarray(p_top, dtype=np.float64)[head].tolist(),
+                    *(column[head].astype(np.float64).tolist() for column in columns[2:]),
+                    rank[head].tolist(),
+                    [reasons[i] for i in head.tolist()],
+                ),
+            )
             connection.execute(
                 insert(Snapshot).values(
                     fit_id=fit_id,
@@ -118,13 +140,13 @@ class FitsMixin(StoreCore):
             )
         return fit_id
 
-    def last_fit(self) -> Optional[FitRecord]:
+    def last_fit(self) -> FitRecord | None:
         """The latest fit with its model, or None before the first fit."""
         with self._read() as connection:
             row = connection.execute(select(Fit.__table__).order_by(Fit.id.desc()).limit(1)).first()
         return None if row is None else _fit_record(row)
 
-    def fit_with_fingerprint(self, fingerprint: str, after_id: int = 0) -> Optional[FitRecord]:
+    def fit_with_fingerprint(self, fingerprint: str, after_id: int = 0) -> FitRecord | None:
         """The newest fit (with id above ``after_id``) made on the label set ``fingerprint`` that
         still has its model, or None."""
         with self._read() as connection:
@@ -169,7 +191,7 @@ class FitsMixin(StoreCore):
             return [dict(row._mapping) for row in rows]
 
     def queue(
-        self, limit: int, offset: int = 0, exclude_claimed: bool = True, holder: Optional[str] = None
+        self, limit: int, offset: int = 0, exclude_claimed: bool = True, holder: str | None = None
     ) -> list[ScoreRow]:
         """Unlabelled candidates of the last fit by rank ascending, ``limit`` of them from ``offset``.
 
@@ -179,9 +201,14 @@ class FitsMixin(StoreCore):
         sql = queue_sql(exclude_claimed)
         with self._read() as connection:
             n_classes = len(class_names(connection))
+            now = utc_now()
             rows = connection.execute(
-                text(sql), {"now": utc_now(), "holder": holder, "limit": limit, "offset": offset}
+                text(sql), {"now": now, "holder": holder, "limit": limit, "offset": offset}
             ).all()
+            if len(rows) < limit and connection.execute(text(HEAD_COUNT)).scalar_one() >= QUEUE_HEAD_ROWS:
+                # past the rows kept in `scores`: the queue goes on in the score blocks
+                return _queue_from_blocks(connection, n_classes, limit, offset,
+                                          exclude_claimed, holder, now)
         return [
             ScoreRow(
                 candidate_id=cid,
@@ -201,7 +228,7 @@ class FitsMixin(StoreCore):
                  reason_) in rows
         ]
 
-    def scores(self, ids: Optional[Sequence[int]] = None, chunk_size: int = 100_000) -> Iterator[ScoreChunk]:
+    def scores(self, ids: Sequence[int] | None = None, chunk_size: int = 100_000) -> Iterator[ScoreChunk]:
         """The last fit's scores as ScoreChunk arrays of at most ``chunk_size`` rows, by candidate id.
 
         With ``ids``, only those candidates (ids without a score are left out). All chunks come from
@@ -209,38 +236,36 @@ class FitsMixin(StoreCore):
         """
         with self._read() as connection:
             n_classes = len(class_names(connection))
-            if ids is None:
-                for rows in fetch_chunks(
-                    connection,
-                    f"SELECT {_SCORE_COLUMNS} FROM scores WHERE +fit_id = {_LAST_FIT} ORDER BY candidate_id",
-                    None,
-                    chunk_size,
-                ):
-                    yield _score_chunk(rows, n_classes)
+            fit_id = connection.execute(text(f"SELECT {_LAST_FIT}")).scalar()
+            if fit_id is None:
                 return
-            unique = np.unique(np.asarray(ids, dtype=np.int64))
-            for start in range(0, len(unique), chunk_size):
-                found = rows_by_id(
-                    connection,
-                    f"SELECT {_SCORE_COLUMNS} {_LAST_FIT_SCORES}",
-                    unique[start : start + chunk_size].tolist(),
-                )
-                if found:
-                    yield _score_chunk([found[cid] for cid in sorted(found)], n_classes)
+            pending: list[np.ndarray] = []
+            held = 0
+            for records in score_chunks(connection, fit_id, n_classes, ids):
+                pending.append(records)
+                held += len(records)
+                while held >= chunk_size:
+                    joined = np.concatenate(pending)
+                    yield _score_chunk(joined[:chunk_size])
+                    pending, held = [joined[chunk_size:]], held - chunk_size
+            if held:
+                yield _score_chunk(np.concatenate(pending))
 
     def predictions_for(self, ids: Sequence[int]) -> np.ndarray:
         """The last fit's predicted class position for each of ``ids`` (int64), -1 where it has none."""
+        ids = np.asarray(ids, dtype=np.int64)
+        out = np.full(len(ids), -1, dtype=np.int64)
         with self._read() as connection:
-            found = rows_by_id(
-                connection,
-                f"SELECT candidate_id, predicted {_LAST_FIT_SCORES}",
-                ids,
-            )
-        return np.fromiter(
-            (row[1] for row in in_given_order(found, ids, lambda _: (None, -1))),
-            dtype=np.int64,
-            count=len(ids),
-        )
+            n_classes = len(class_names(connection))
+            fit_id = connection.execute(text(f"SELECT {_LAST_FIT}")).scalar()
+            records = (None if fit_id is None
+                       else score_records(connection, fit_id, n_classes, ids))
+        if records is not None:
+            pos = np.searchsorted(records["candidate_id"], ids)
+            ok = pos < len(records)
+            ok[ok] = records["candidate_id"][pos[ok]] == ids[ok]
+            out[ok] = records["predicted"][pos[ok]]
+        return out
 
     def drop_fits(self, ids: Sequence[int]) -> None:
         """Delete the fits ``ids`` with their snapshots (and scores) in one transaction."""
@@ -252,13 +277,14 @@ class FitsMixin(StoreCore):
                 chunk = {"ids": ids[start : start + 500]}
                 for sql in ("DELETE FROM snapshots WHERE fit_id IN :ids",
                             "DELETE FROM scores WHERE fit_id IN :ids",
+                            "DELETE FROM score_blocks WHERE fit_id IN :ids",
                             "DELETE FROM fits WHERE id IN :ids"):
                     connection.execute(text(sql).bindparams(bindparam("ids", expanding=True)), chunk)
 
     def clear_derived(self) -> None:
         """Delete every fit, score and snapshot in one transaction (labels are kept)."""
         with self._write(DERIVED) as connection:
-            for table in ("snapshots", "scores", "fits"):
+            for table in ("snapshots", "scores", "score_blocks", "fits"):
                 connection.execute(text(f"DELETE FROM {table}"))
 
 
@@ -281,7 +307,7 @@ _FIT_FIELDS = (
 )
 
 
-def _check_session(connection: Connection, session_id: Optional[int]) -> None:
+def _check_session(connection: Connection, session_id: int | None) -> None:
     if session_id is None:
         return
     found = connection.execute(text("SELECT 1 FROM sessions WHERE id = :id"), {"id": session_id}).scalar()
@@ -296,16 +322,62 @@ def _fit_record(row: Row[Any]) -> FitRecord:
     return FitRecord(**values)
 
 
-def _score_chunk(rows: Sequence[tuple[Any, ...]], n_classes: int) -> ScoreChunk:
-    cid, blobs, predicted, p_top, p_low, p_high, entropy, margin, bald, priority, rank = zip(*rows)
-    floats = [
-        np.array(values, dtype=np.float64)
-        for values in (p_top, p_low, p_high, entropy, margin, bald, priority)
+def _queue_from_blocks(connection: Connection, n_classes: int, limit: int, offset: int,
+                       exclude_claimed: bool, holder: str | None, now: str) -> list[ScoreRow]:
+    """`FitsMixin.queue` read from the last fit's score blocks (ranks past the `scores` table)."""
+    fit_id = connection.execute(text(f"SELECT {_LAST_FIT}")).scalar_one()
+    records = score_records(connection, fit_id, n_classes)
+    if records is None:
+        return []
+    records = records[records["rank"] > 0]
+    records = records[np.argsort(records["rank"], kind="stable")]
+    labelled = np.fromiter(connection.execute(text(
+        f"SELECT DISTINCT l.candidate_id FROM label_events l WHERE {LIVE_LABEL}")).scalars(),
+        dtype=np.int64)
+    keep = ~np.isin(records["candidate_id"], labelled)
+    if exclude_claimed:
+        held = np.fromiter(connection.execute(text(
+            "SELECT candidate_id FROM claims WHERE expires_at > :now"
+            " AND (CAST(:holder AS TEXT) IS NULL OR holder <> :holder)"),
+            {"now": now, "holder": holder}).scalars(), dtype=np.int64)
+        keep &= ~np.isin(records["candidate_id"], held)
+    records = records[keep][offset:offset + limit]
+    ids = records["candidate_id"].tolist()
+    found = rows_by_id(connection, "SELECT id, key, meta FROM candidates WHERE id IN ({ids})", ids)
+    reasons = dict(connection.execute(text(
+        f"SELECT candidate_id, reason FROM scores WHERE +fit_id = {_LAST_FIT}")).all())
+    chunk = _score_chunk(records)
+    return [
+        ScoreRow(candidate_id=cid, key=found[cid][1], meta=json_object(found[cid][2]),
+                 probabilities=chunk.probabilities[i], predicted=int(chunk.predicted[i]),
+                 p_top=float(chunk.p_top[i]), entropy=float(chunk.entropy[i]),
+                 margin=float(chunk.margin[i]), bald=float(chunk.bald[i]),
+                 priority=float(chunk.priority[i]), rank=int(chunk.rank[i]),
+                 reason=reasons.get(cid))
+        for i, cid in enumerate(ids)
     ]
+
+
+def _rank_array(rank) -> np.ndarray:
+    """Ranks as int64 with -1 for candidates outside the queue (given as None or negative)."""
+    values = np.asarray(rank)
+    if values.dtype == object:
+        values = np.array([-1 if r is None else int(r) for r in values.tolist()], dtype=np.int64)
+    values = values.astype(np.int64)
+    values[values < 0] = -1
+    return values
+
+
+def _score_chunk(records: np.ndarray) -> ScoreChunk:
+    probabilities = records["probabilities"].astype(np.float64)
+    predicted = records["predicted"].astype(np.int64)
     return ScoreChunk(
-        np.array(cid, dtype=np.int64),
-        decode_rows(blobs, n_classes),
-        np.array(predicted, dtype=np.int64),
-        *floats,
-        rank=np.array([-1 if r is None else r for r in rank], dtype=np.int64),
+        records["candidate_id"].astype(np.int64),
+        probabilities,
+        predicted,
+        probabilities[np.arange(len(records)), predicted],
+        *(records[name].astype(np.float64)
+          for name in ("p_low", "p_high", "entropy", "margin", "bald", "priority")),
+        rank=records["rank"].astype(np.int64),
+        exact=records["exact"].astype(bool),
     )

@@ -6,10 +6,11 @@ orders labels and skips on one time line. Fits, scores and snapshots are derived
 and may be deleted and rebuilt at any time.
 """
 
-from typing import Any, Optional
+from typing import Any
 
 from sqlalchemy import (
     JSON,
+    BigInteger,
     Boolean,
     CheckConstraint,
     Float,
@@ -19,8 +20,8 @@ from sqlalchemy import (
     MetaData,
     String,
     Text,
+    false,
 )
-from sqlalchemy import false
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 
 NAMING_CONVENTION = {
@@ -31,7 +32,7 @@ NAMING_CONVENTION = {
     "pk": "pk_%(table_name)s",
 }
 
-from labelq.store.sql import APPLICATION  # noqa: E402,F401 (re-exported)
+from labelq.store.sql import APPLICATION  # noqa: F401 (re-exported)
 
 
 class Base(DeclarativeBase):
@@ -53,16 +54,31 @@ class StoreInfo(Base):
 
 
 class Candidate(Base):
-    """An item of the pool: a unique key, a float64 feature row and free-form metadata."""
+    """An item of the pool: a unique key and free-form metadata; its features are in a
+    feature block (revision 0007)."""
 
     __tablename__ = "candidates"
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     key: Mapped[str] = mapped_column(String, unique=True)
-    features: Mapped[bytes] = mapped_column(LargeBinary)
     meta: Mapped[dict[str, Any]] = mapped_column(JSON)
     added_at: Mapped[str] = mapped_column(String)
     added_mark: Mapped[int] = mapped_column(Integer, server_default="0")
+
+
+class FeatureBlock(Base):
+    """Features of up to BLOCK_ROWS consecutive candidates of one import (labelq.store.columns)."""
+
+    __tablename__ = "feature_blocks"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    first_id: Mapped[int] = mapped_column(Integer, index=True)
+    last_id: Mapped[int] = mapped_column(Integer)
+    n_rows: Mapped[int] = mapped_column(Integer)
+    mark: Mapped[int] = mapped_column(Integer)
+    """The event mark of the import that added the block's candidates."""
+    data: Mapped[bytes] = mapped_column(LargeBinary)
+    checksum: Mapped[int] = mapped_column(BigInteger)
 
 
 class FeatureColumn(Base):
@@ -95,12 +111,12 @@ class LabelEvent(Base):
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), index=True)
-    class_: Mapped[Optional[str]] = mapped_column("class", ForeignKey("classes.name"))
+    class_: Mapped[str | None] = mapped_column("class", ForeignKey("classes.name"))
     by: Mapped[str] = mapped_column(String)
-    note: Mapped[Optional[str]] = mapped_column(Text)
+    note: Mapped[str | None] = mapped_column(Text)
     at: Mapped[str] = mapped_column(String)
     mark: Mapped[int] = mapped_column(Integer)
-    retracts_id: Mapped[Optional[int]] = mapped_column(ForeignKey("label_events.id"), unique=True)
+    retracts_id: Mapped[int | None] = mapped_column(ForeignKey("label_events.id"), unique=True)
 
 
 class SkipEvent(Base):
@@ -113,7 +129,7 @@ class SkipEvent(Base):
     by: Mapped[str] = mapped_column(String)
     at: Mapped[str] = mapped_column(String)
     mark: Mapped[int] = mapped_column(Integer)
-    retracts_id: Mapped[Optional[int]] = mapped_column(ForeignKey("skip_events.id"), unique=True)
+    retracts_id: Mapped[int | None] = mapped_column(ForeignKey("skip_events.id"), unique=True)
 
 
 class LabelSession(Base):
@@ -123,7 +139,7 @@ class LabelSession(Base):
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     started_at: Mapped[str] = mapped_column(String)
-    ended_at: Mapped[Optional[str]] = mapped_column(String)
+    ended_at: Mapped[str | None] = mapped_column(String)
     by: Mapped[str] = mapped_column(String)
 
 
@@ -133,29 +149,30 @@ class Fit(Base):
     __tablename__ = "fits"
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
-    session_id: Mapped[Optional[int]] = mapped_column(ForeignKey("sessions.id"))
+    session_id: Mapped[int | None] = mapped_column(ForeignKey("sessions.id"))
     n_labels: Mapped[int] = mapped_column(Integer)
     strategy: Mapped[str] = mapped_column(String)
     hyperparameters: Mapped[dict[str, Any]] = mapped_column(JSON)
-    log_marginal_likelihood: Mapped[Optional[float]] = mapped_column(Float)
+    log_marginal_likelihood: Mapped[float | None] = mapped_column(Float)
     seconds: Mapped[float] = mapped_column(Float)
     at: Mapped[str] = mapped_column(String)
     event_mark: Mapped[int] = mapped_column(Integer)
-    model: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON(none_as_null=True))
-    fingerprint: Mapped[Optional[str]] = mapped_column(String, index=True)
-    info: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON)
+    model: Mapped[dict[str, Any] | None] = mapped_column(JSON(none_as_null=True))
+    fingerprint: Mapped[str | None] = mapped_column(String, index=True)
+    info: Mapped[dict[str, Any] | None] = mapped_column(JSON)
     warnings: Mapped[list[str]] = mapped_column(JSON)
     full_optimize: Mapped[bool] = mapped_column()
-    settings: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON)
+    settings: Mapped[dict[str, Any] | None] = mapped_column(JSON)
     """The fit policy's settings (labelq.policy.PolicySettings.to_dict); None before revision 0004."""
-    hyper_mode: Mapped[Optional[str]] = mapped_column(String)
+    hyper_mode: Mapped[str | None] = mapped_column(String)
     """How the hyperparameters were set: average (grid), learnt (this fit) or held."""
-    learnt_at: Mapped[Optional[int]] = mapped_column(Integer)
+    learnt_at: Mapped[int | None] = mapped_column(Integer)
     """Label count at the last gradient-based learning of the hyperparameters (0: never)."""
 
 
 class Score(Base):
-    """A candidate's class probabilities and acquisition scores under one fit."""
+    """A row of the head of the queue: a candidate's class probabilities and acquisition scores
+    under the last fit (ranks 1 to sql.QUEUE_HEAD_ROWS; every candidate's are in score_blocks)."""
 
     __tablename__ = "scores"
 
@@ -170,9 +187,24 @@ class Score(Base):
     margin: Mapped[float] = mapped_column(Float)
     bald: Mapped[float] = mapped_column(Float)
     priority: Mapped[float] = mapped_column(Float)
-    rank: Mapped[Optional[int]] = mapped_column(Integer, index=True)
-    reason: Mapped[Optional[str]] = mapped_column(String)
+    rank: Mapped[int | None] = mapped_column(Integer, index=True)
+    reason: Mapped[str | None] = mapped_column(String)
     """Why a row of the head of the queue is there, in words; None below the head."""
+
+
+class ScoreBlock(Base):
+    """Every candidate's scores under one fit, in blocks of structured arrays
+    (labelq.store.columns.score_dtype); the `scores` table keeps only the head of the queue."""
+
+    __tablename__ = "score_blocks"
+
+    fit_id: Mapped[int] = mapped_column(ForeignKey("fits.id"), primary_key=True)
+    block: Mapped[int] = mapped_column(Integer, primary_key=True)
+    first_id: Mapped[int] = mapped_column(Integer)
+    last_id: Mapped[int] = mapped_column(Integer)
+    n_rows: Mapped[int] = mapped_column(Integer)
+    data: Mapped[bytes] = mapped_column(LargeBinary)
+    checksum: Mapped[int] = mapped_column(BigInteger)
 
 
 class Snapshot(Base):
@@ -184,7 +216,7 @@ class Snapshot(Base):
     mean_entropy: Mapped[float] = mapped_column(Float)
     n_uncertain: Mapped[int] = mapped_column(Integer)
     expected_accuracy: Mapped[float] = mapped_column(Float)
-    agreement_kappa: Mapped[Optional[float]] = mapped_column(Float)
+    agreement_kappa: Mapped[float | None] = mapped_column(Float)
     class_counts: Mapped[dict[str, int]] = mapped_column(JSON)
 
 
@@ -224,12 +256,12 @@ class AuditItem(Base):
     audit_id: Mapped[int] = mapped_column(ForeignKey("audits.id"), index=True)
     position: Mapped[int] = mapped_column(Integer)
     """Order within the sample (the order items are offered in)."""
-    fit_id: Mapped[Optional[int]] = mapped_column(Integer)
+    fit_id: Mapped[int | None] = mapped_column(Integer)
     """The fit whose prediction was recorded (None: not labelled yet, or no model then)."""
-    predicted: Mapped[Optional[int]] = mapped_column(Integer)
-    p_top: Mapped[Optional[float]] = mapped_column(Float)
-    probabilities: Mapped[Optional[bytes]] = mapped_column(LargeBinary)
-    scored_mark: Mapped[Optional[int]] = mapped_column(Integer)
+    predicted: Mapped[int | None] = mapped_column(Integer)
+    p_top: Mapped[float | None] = mapped_column(Float)
+    probabilities: Mapped[bytes | None] = mapped_column(LargeBinary)
+    scored_mark: Mapped[int | None] = mapped_column(Integer)
     """Event mark of the first label of the item (when the prediction was recorded)."""
 
 
@@ -244,6 +276,6 @@ class Dispute(Base):
     candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), index=True)
     first_id: Mapped[int] = mapped_column(ForeignKey("label_events.id"))
     second_id: Mapped[int] = mapped_column(ForeignKey("label_events.id"))
-    resolved_id: Mapped[Optional[int]] = mapped_column(ForeignKey("label_events.id"))
+    resolved_id: Mapped[int | None] = mapped_column(ForeignKey("label_events.id"))
     at: Mapped[str] = mapped_column(String)
 

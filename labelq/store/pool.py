@@ -3,14 +3,13 @@
 import json
 from collections.abc import Iterator, Sequence
 from itertools import repeat
-from typing import Any, NoReturn, Optional
+from typing import Any, NoReturn
 
 import numpy as np
 from sqlalchemy import Connection, bindparam, text
 
-from labelq.store.blobs import decode_rows, row_blobs
+from labelq.store.blockio import feature_chunks, features_for, insert_features
 from labelq.store.classes import resolve_class
-from labelq.store.core import feature_names as stored_feature_names
 from labelq.store.core import (
     CURRENT_LABEL_IDS,
     LIVE_LABEL,
@@ -22,7 +21,14 @@ from labelq.store.core import (
     json_object,
     rows_by_id,
 )
-from labelq.store.engine import ConstraintViolation, bulk_insert, bump_event_mark, fetch_chunks, is_sqlite
+from labelq.store.core import feature_names as stored_feature_names
+from labelq.store.engine import (
+    ConstraintViolation,
+    bulk_insert,
+    bump_event_mark,
+    fetch_chunks,
+    is_sqlite,
+)
 from labelq.store.errors import (
     DuplicateKeyError,
     FeatureMismatchError,
@@ -31,7 +37,7 @@ from labelq.store.errors import (
 from labelq.store.records import CandidateRecord
 from labelq.store.timestamps import utc_now
 
-_CANDIDATE_COLUMNS = ("id", "key", "features", "meta", "added_at", "added_mark")
+_CANDIDATE_COLUMNS = ("id", "key", "meta", "added_at", "added_mark")
 _LABEL_COLUMNS = ("candidate_id", "class", "by", "at", "mark")
 
 
@@ -57,7 +63,7 @@ class PoolMixin(StoreCore):
         X: np.ndarray,
         meta: Sequence[dict[str, Any]],
         feature_names: Sequence[str],
-        labels: Optional[Sequence[Optional[str]]] = None,
+        labels: Sequence[str | None] | None = None,
         by: str = "import",
     ) -> int:
         """Add candidates with features ``X`` (n, d) in one transaction; the number added.
@@ -83,13 +89,15 @@ class PoolMixin(StoreCore):
             try:
                 bulk_insert(
                     connection, "candidates", _CANDIDATE_COLUMNS,
-                    zip(range(first_id, first_id + len(keys)), keys, row_blobs(X), map(json.dumps, meta),
+                    zip(range(first_id, first_id + len(keys)), keys, map(json.dumps, meta),
                         repeat(now), repeat(mark)),
                 )
             except ConstraintViolation:
                 raise DuplicateKeyError(
                     f"candidate key {_first_stored_key(connection, keys, first_id)!r} is already in the store"
                 ) from None
+            insert_features(connection, np.arange(first_id, first_id + len(keys), dtype=np.int64),
+                            X, mark)
             if not is_sqlite(connection):  # the id sequence follows the ids given
                 connection.execute(text(
                     "SELECT setval(pg_get_serial_sequence('candidates', 'id'), MAX(id)) FROM candidates"))
@@ -125,24 +133,28 @@ class PoolMixin(StoreCore):
             return np.fromiter((row[0] for rows in chunks for row in rows), dtype=np.int64)
 
     def iter_features(
-        self, chunk_size: int = 100_000, max_mark: Optional[int] = None
+        self, chunk_size: int = 100_000, max_mark: int | None = None
     ) -> Iterator[tuple[np.ndarray, np.ndarray]]:
-        """Yield ``(ids (m,), X (m, d))`` in id order, at most ``chunk_size`` rows at a time.
+        """Yield ``(ids (m,), X (m, d))`` in id order, at most ``chunk_size`` rows at a time (one
+        feature block in memory at a time).
 
         With ``max_mark``, only candidates imported at or before that event mark (the pool as it
         stood then). All chunks come from one read transaction: a consistent view of the pool.
         """
         with self._read() as connection:
             width = len(stored_feature_names(connection))
-            yield from _feature_chunks(connection, width, chunk_size, max_mark)
+            for ids, X in feature_chunks(connection, width, max_mark):
+                for start in range(0, len(ids), chunk_size):
+                    yield ids[start:start + chunk_size], X[start:start + chunk_size]
 
     def features(self, ids: Sequence[int]) -> np.ndarray:
         """Feature rows (len(ids), d) in the order of ``ids``; UnknownCandidateError for a missing id."""
         with self._read() as connection:
             width = len(stored_feature_names(connection))
-            found = rows_by_id(connection, "SELECT id, features FROM candidates WHERE id IN ({ids})", ids)
-        blobs = [row[1] for row in in_given_order(found, ids, _unknown_candidate)]
-        return decode_rows(blobs, width)
+            found, X = features_for(connection, width, ids)
+        if not found.all():
+            _unknown_candidate(int(np.asarray(ids)[~found][0]))
+        return X
 
     def keys(self, ids: Sequence[int]) -> list[str]:
         """Candidate keys in the order of ``ids``."""
@@ -161,9 +173,10 @@ class PoolMixin(StoreCore):
         with self._read() as connection:
             cid = candidate_id(connection, key)
             names = stored_feature_names(connection)
-            blob, meta = connection.execute(
-                text("SELECT features, meta FROM candidates WHERE id = :id"), {"id": cid}
-            ).one()
+            meta = connection.execute(
+                text("SELECT meta FROM candidates WHERE id = :id"), {"id": cid}
+            ).scalar_one()
+            values = features_for(connection, len(names), [cid])[1][0]
             label = connection.execute(
                 text(
                     f"SELECT class FROM label_events WHERE id IN ({CURRENT_LABEL_IDS}) AND candidate_id = :id"
@@ -176,7 +189,6 @@ class PoolMixin(StoreCore):
                 ),
                 {"id": cid},
             ).scalar_one()
-        values = decode_rows([blob], len(names))[0]
         return CandidateRecord(
             id=cid,
             key=key,
@@ -196,7 +208,7 @@ def _validate_import(
     X: np.ndarray,
     meta: Sequence[dict[str, Any]],
     names: Sequence[str],
-    labels: Optional[Sequence[Optional[str]]],
+    labels: Sequence[str | None] | None,
 ) -> None:
     """Check shapes and values of an import; DuplicateKeyError for a key repeated in the input."""
     if X.ndim != 2 or X.shape[0] != len(keys):
@@ -214,7 +226,7 @@ def _validate_import(
         seen.add(key)
 
 
-def _resolve_labels(connection: Connection, labels: Sequence[Optional[str]]) -> list[Optional[str]]:
+def _resolve_labels(connection: Connection, labels: Sequence[str | None]) -> list[str | None]:
     """Each given label as its stored class name (any case, or the class's number; see
     labelq.store.classes); UnknownClassError with a did-you-mean for the first that names none."""
     classes = class_names(connection)
@@ -256,22 +268,9 @@ def _first_stored_key(connection: Connection, keys: Sequence[str], first_new_id:
     raise AssertionError("an import failed on a key constraint without a stored duplicate")
 
 
-def _feature_chunks(
-    connection: Connection, width: int, chunk_size: int, max_mark: Optional[int] = None
-) -> Iterator[tuple[np.ndarray, np.ndarray]]:
-    if max_mark is None:
-        rows = fetch_chunks(connection, "SELECT id, features FROM candidates ORDER BY id", None, chunk_size)
-    else:
-        rows = fetch_chunks(connection, "SELECT id, features FROM candidates WHERE added_mark <= :mark"
-                            " ORDER BY id", {"mark": max_mark}, chunk_size)
-    for chunk in rows:
-        ids, blobs = zip(*chunk)
-        yield np.array(ids, dtype=np.int64), decode_rows(blobs, width)
-
-
 def _update_scaling(connection: Connection, width: int) -> None:
     """Recompute each feature's mean and scale over the whole pool and store them."""
-    mean, scale = pool_moments(X for _, X in _feature_chunks(connection, width, 100_000))
+    mean, scale = pool_moments(X for _, X in feature_chunks(connection, width))
     connection.execute(
         text("UPDATE feature_schema SET mean = :mean, scale = :scale WHERE position = :position"),
         [
@@ -289,8 +288,8 @@ def pool_moments(chunks: Iterator[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     deviation, or 1.0 where it is zero or not finite.
     """
     count = 0
-    mean: Optional[np.ndarray] = None
-    m2: Optional[np.ndarray] = None
+    mean: np.ndarray | None = None
+    m2: np.ndarray | None = None
     for X in chunks:
         n_b = X.shape[0]
         mean_b = X.mean(axis=0)

@@ -1,7 +1,7 @@
 """Plain records the store returns; arrays are NumPy, JSON columns are decoded."""
 
 from dataclasses import dataclass
-from typing import Any, Literal, Optional
+from typing import Any, Literal
 
 import numpy as np
 
@@ -14,7 +14,7 @@ class CandidateRecord:
     key: str
     features: dict[str, float]
     meta: dict[str, Any]
-    label: Optional[str]
+    label: str | None
     skipped: bool
 
 
@@ -27,7 +27,7 @@ class LabelRecord:
     key: str
     class_: str
     by: str
-    note: Optional[str]
+    note: str | None
     at: str
 
 
@@ -37,7 +37,7 @@ class UndoRecord:
 
     kind: Literal["label", "skip"]
     key: str
-    class_: Optional[str]
+    class_: str | None
 
 
 @dataclass(frozen=True)
@@ -49,22 +49,22 @@ class FitRecord:
     """
 
     id: int
-    session_id: Optional[int]
+    session_id: int | None
     n_labels: int
     strategy: str
     hyperparameters: dict[str, Any]
-    log_marginal_likelihood: Optional[float]
+    log_marginal_likelihood: float | None
     seconds: float
     at: str
     event_mark: int
-    model: Optional[dict[str, Any]]
+    model: dict[str, Any] | None
     warnings: list[str]
     full_optimize: bool
-    fingerprint: Optional[str] = None
-    info: Optional[dict[str, Any]] = None
-    settings: Optional[dict[str, Any]] = None
-    hyper_mode: Optional[str] = None
-    learnt_at: Optional[int] = None
+    fingerprint: str | None = None
+    info: dict[str, Any] | None = None
+    settings: dict[str, Any] | None = None
+    hyper_mode: str | None = None
+    learnt_at: int | None = None
 
 
 @dataclass(frozen=True)
@@ -82,7 +82,7 @@ class ScoreRow:
     bald: float
     priority: float
     rank: int
-    reason: Optional[str] = None
+    reason: str | None = None
 
 
 @dataclass(frozen=True)
@@ -104,3 +104,6 @@ class ScoreChunk:
     bald: np.ndarray
     priority: np.ndarray
     rank: np.ndarray
+    exact: np.ndarray | None = None
+    """(m,) bool: the row's latent variance was computed exactly (False: an upper bound; see
+    labelq.policy.bounded)."""

@@ -80,3 +80,11 @@ HELD_BY_OTHERS = (
     "SELECT COUNT(*), MAX(expires_at) FROM claims WHERE expires_at > :now"
     " AND (CAST(:holder AS TEXT) IS NULL OR holder <> :holder)"
 )
+
+QUEUE_HEAD_ROWS = 1000
+"""Ranks kept as rows of the `scores` table (the head of the queue, read by `next` through SQL);
+every candidate's scores are in the last fit's score blocks (labelq.store.columns)."""
+
+HEAD_COUNT = f"SELECT COUNT(*) FROM scores WHERE +fit_id = {LAST_FIT}"
+"""SQL: how many head rows the last fit keeps; `QUEUE_HEAD_ROWS` of them means the queue goes
+on in the score blocks."""

@@ -20,7 +20,8 @@ from labelq.cli.app import app
 from tests.conftest import db_argument, engine_for
 
 TABLES = ("candidates", "feature_schema", "classes", "label_events", "skip_events", "sessions",
-          "fits", "scores", "snapshots", "claims", "audits", "audit_items")
+          "fits", "scores", "snapshots", "claims", "audits", "audit_items", "disputes",
+          "feature_blocks", "score_blocks")
 
 
 def write_csv(path: Path, header, rows) -> Path:

@@ -36,13 +36,20 @@ def store_rows(cli) -> dict:
     """Every row of the candidates table (and the feature schema and label events), in id
     order: equal dumps before and after mean the store did not change."""
     return {table: cli.query(f"SELECT * FROM {table} ORDER BY 1, 2")
-            for table in ("candidates", "feature_schema", "label_events")}
+            for table in ("candidates", "feature_blocks", "feature_schema", "label_events")}
 
 
 def stored_features(cli) -> dict[str, list[float]]:
-    """Each stored candidate's feature values (the float64 blob), by key."""
-    rows = cli.query("SELECT key, features FROM candidates")
-    return {key: np.frombuffer(blob, dtype=np.float64).tolist() for key, blob in rows}
+    """Each stored candidate's feature values, by key, read from the raw feature blocks (revision
+    0007: n int64 ids, then n x d float64 values, little-endian)."""
+    keys = dict(cli.query("SELECT id, key FROM candidates"))
+    width = cli.query("SELECT COUNT(*) FROM feature_schema")[0][0]
+    out = {}
+    for n, blob in cli.query("SELECT n_rows, data FROM feature_blocks"):
+        ids = np.frombuffer(blob, dtype="<i8", count=n)
+        values = np.frombuffer(blob, dtype="<f8", offset=8 * n).reshape(n, width)
+        out.update({keys[int(i)]: row.tolist() for i, row in zip(ids, values)})
+    return out
 
 
 @pytest.fixture

@@ -23,7 +23,7 @@ from typer.testing import CliRunner
 from labelq.cli.app import app
 
 TABLES = ("candidates", "feature_schema", "classes", "label_events", "skip_events", "sessions",
-          "fits", "scores", "snapshots", "claims")
+          "fits", "scores", "snapshots", "claims", "feature_blocks", "score_blocks")
 
 
 def write_dataset_csv(path: Path, data, rows=None, labels_for=None, class_names=None) -> Path:

@@ -109,11 +109,6 @@ def test_an_interrupted_rebuild_loses_nothing(history_store):
     assert cli("check").exit_code == 0
 
 
-def _first_score_row(sql, db):
-    query, _ = sql
-    return query(db, "SELECT candidate_id FROM scores ORDER BY candidate_id LIMIT 1")[0][0]
-
-
 @pytest.mark.slow
 def test_check_finds_a_score_row_of_an_older_fit_and_rebuild_repairs_it(history_store, sql):
     """A score row inserted for an older fit id (sqlite3) is reported, exit 1; `rebuild` makes the
@@ -138,30 +133,57 @@ def test_check_finds_a_score_row_of_an_older_fit_and_rebuild_repairs_it(history_
                                                                abs=1e-9)
 
 
-def test_check_finds_a_missing_score_row(history_store, sql):
-    """A candidate's score row deleted (sqlite3): the last fit no longer scores the whole pool,
+def _damage_block(sql, db, table, where="1 = 1"):
+    """Flip one byte in the middle of the first block of ``table`` (sqlite3), as a bad disk
+    sector or a stray write would."""
+    query, execute = sql
+    rowid, blob = query(db, f"SELECT rowid, data FROM {table} WHERE {where} ORDER BY rowid LIMIT 1")[0]
+    data = bytearray(blob)
+    data[len(data) // 2] ^= 0xFF
+    execute(db, f"UPDATE {table} SET data = ? WHERE rowid = ?", (bytes(data), rowid))
+
+
+def test_check_finds_a_missing_score_block(history_store, sql):
+    """The last fit's score block deleted (sqlite3): the fit no longer scores the whole pool,
     which check must report with exit 1; common practice."""
     cli = history_store
     _, execute = sql
-    cid = _first_score_row(sql, cli.db)
-    execute(cli.db, "DELETE FROM scores WHERE candidate_id = ?", (cid,))
+    execute(cli.db, "DELETE FROM score_blocks")
     result = cli("check")
     assert result.exit_code == 1, result.output
+    assert "569 candidates have no score under the last fit" in result.stdout
 
 
 @pytest.mark.slow
-def test_rebuild_repairs_a_missing_score_row(history_store, sql):
-    """After a score row is deleted, `rebuild` restores one score per candidate and the same
-    snapshots; common practice."""
+def test_check_finds_a_corrupted_score_block_and_rebuild_repairs_it(history_store, sql):
+    """Issue 13's acceptance: a score block with one byte flipped fails its CRC-32; `check`
+    names it (exit 1), a command that reads it says so in one line (exit 2, no traceback),
+    and `rebuild` remakes it from the label events with the same snapshots; common practice."""
     cli = history_store
-    query, execute = sql
     before = _history(cli)
-    execute(cli.db, "DELETE FROM scores WHERE candidate_id = ?", (_first_score_row(sql, cli.db),))
+    _damage_block(sql, cli.db, "score_blocks")
+    result = cli("check")
+    assert result.exit_code == 1, result.output
+    assert "score block 0 of the last fit is damaged" in result.stdout
+    export = cli("export", "predictions")
+    assert export.exit_code == 2 and "Traceback" not in export.output
+    assert "score block 0" in export.stderr and len(export.stderr.strip().splitlines()) == 1
     assert cli("rebuild").exit_code == 0
-    assert query(cli.db, "SELECT COUNT(*) FROM scores")[0][0] == 569
+    assert cli("check").exit_code == 0
+    assert cli("export", "predictions").exit_code == 0
     after = _history(cli)
     for old, new in zip(before, after):
         assert new["expected_accuracy"] == pytest.approx(old["expected_accuracy"], abs=1e-9)
+
+
+def test_check_finds_a_corrupted_feature_block(history_store, sql):
+    """A feature block with one byte flipped: `check` reports it as primary data that a rebuild
+    cannot remake (restore or import again), exit 1; common practice."""
+    cli = history_store
+    _damage_block(sql, cli.db, "feature_blocks")
+    result = cli("check")
+    assert result.exit_code == 1, result.output
+    assert "feature block" in result.stdout and "restore" in result.stdout
 
 
 # --- keys and class names that look like SQL or markup ------------------------------------------

@@ -37,7 +37,7 @@ def _columns(location, table: str) -> list[str]:
 
 def test_there_is_exactly_one_head() -> None:
     heads = ScriptDirectory.from_config(alembic_config()).get_heads()
-    assert heads == [head_revision()] == ["0006"]
+    assert heads == [head_revision()] == ["0007"]
 
 
 def test_revisions_build_exactly_the_models(store: Store) -> None:
@@ -84,7 +84,7 @@ def test_open_upgrades_a_first_revision_store_with_its_data(store_at) -> None:
         assert store.sessions()[0]["by"] == "ana"
         assert store.last_fit() is None
         assert store.claim([record.id], "ana") == [record.id]
-    assert _query(location, "SELECT version_num FROM alembic_version") == [("0006",)]
+    assert _query(location, "SELECT version_num FROM alembic_version") == [("0007",)]
 
 
 def test_open_refuses_a_store_from_a_newer_labelq(store: Store) -> None:
@@ -150,8 +150,9 @@ def test_a_store_at_0004_with_data_upgrades_to_the_audit_tables(store: Store) ->
         command.downgrade(alembic_config(connection), "0004")
     tables = table_names(store.path)
     assert "audits" not in tables and "audit_items" not in tables
-    new_tables = ("audits", "audit_items", "disputes")  # revisions 0005 and 0006
-    assert not set(new_tables) & tables
+    # revisions 0005-0007 (0007 also keeps only the head of the queue in `scores`)
+    new_tables = ("audits", "audit_items", "disputes", "feature_blocks", "score_blocks", "scores")
+    assert not set(new_tables[:-1]) & tables
     before = {t: n for t, n in table_rows(store.path).items() if t not in new_tables}
     with Store.open(store.path) as reopened:  # upgrades in place
         after = table_rows(store.path)
@@ -202,11 +203,58 @@ def test_a_store_at_0005_with_an_audit_upgrades_to_the_dispute_tables(store: Sto
     with writing(store._engine) as connection:
         command.downgrade(alembic_config(connection), "0005")
     assert "disputes" not in table_names(store.path)
-    before = {t: n for t, n in table_rows(store.path).items() if t != "disputes"}
+    later = ("disputes", "feature_blocks", "score_blocks", "scores")  # 0006, 0007
+    before = {t: n for t, n in table_rows(store.path).items() if t not in later}
     with Store.open(store.path) as reopened:
         after = table_rows(store.path)
-        assert {t: n for t, n in after.items() if t != "disputes"} == before
+        assert {t: n for t, n in after.items() if t not in later} == before
         assert [i.key for i in reopened.audit_items()] == [i.key for i in store.audit_items()]
         assert reopened.audit_items()[0].predicted is not None
         assert reopened.double_pairs() == []
+        assert reopened.check() == []
+
+
+def test_a_store_at_0006_with_data_converts_to_column_blocks(store: Store) -> None:
+    """Revision 0007 (column blocks) on a store made at 0006 with labels, a skip, an undo, fits
+    and scores: down to 0006 (one feature blob and one score row per candidate again) and up
+    through Store.open; every label, skip and event is kept, each candidate's features and the
+    last fit's scores come back equal, the queue is the same and `check` finds nothing (common
+    practice for schema revisions, STYLE.md)."""
+    import numpy as np
+
+    from labelq.loop import actions
+
+    from .conftest import orchard
+
+    keys, X, meta = orchard(60)
+    store.add_candidates(keys[:40], X[:40], meta[:40], FEATURES)
+    store.add_candidates(keys[40:], X[40:], meta[40:], FEATURES)  # a second import: two blocks
+    for key, grade in zip(keys[:5], ["export", "local", "juice", "export", "local"]):
+        actions.label(store, key, grade, "ana")
+    store.skip(keys[7], "ana")
+    actions.undo(store, "ana")
+    actions.label(store, keys[8], "juice", "ana")
+    queue = [(r.key, r.rank, r.priority) for r in store.queue(20)]
+    scores = np.concatenate([c.probabilities for c in store.scores()])
+    with writing(store._engine) as connection:
+        command.downgrade(alembic_config(connection), "0006")
+    assert "features" in _columns(store.path, "candidates")
+    assert "feature_blocks" not in table_names(store.path)
+    events = {t: _query(store.path, f"SELECT * FROM {t} ORDER BY id")
+              for t in ("label_events", "skip_events")}
+    assert table_rows(store.path)["scores"] == 60  # one row per candidate at 0006
+    with Store.open(store.path) as reopened:
+        assert reopened.check() == []
+        assert "features" not in _columns(store.path, "candidates")
+        for t, rows in events.items():
+            assert _query(store.path, f"SELECT * FROM {t} ORDER BY id") == rows
+        ids = reopened.pool_ids()
+        np.testing.assert_array_equal(reopened.features(ids), X)
+        assert [(r.key, r.rank, r.priority) for r in reopened.queue(20)] == queue
+        np.testing.assert_array_equal(
+            np.concatenate([c.probabilities for c in reopened.scores()]), scores)
+        assert table_rows(store.path)["feature_blocks"] == 2
+        # the head of the queue stays a table; the rest lives in the score blocks
+        assert table_rows(store.path)["scores"] == 60 - 6  # six labelled (the undo took the skip)
+        assert actions.label(reopened, keys[9], "export", "ana") is not None
         assert reopened.check() == []
