@@ -45,6 +45,7 @@ __all__ = [
     "InputError",
     "MissingCells",
     "read_candidates",
+    "stream_candidates",
 ]
 
 FIELD_SIZE_LIMIT = 16 * 1024 * 1024
@@ -182,6 +183,54 @@ def read_candidates(
     return plan.finish()
 
 
+def stream_candidates(
+    path: str | os.PathLike,
+    id_column: str,
+    features: Optional[Sequence[str]] = None,
+    labels_column: Optional[str] = None,
+    expected_features: Optional[Sequence[str]] = None,
+    progress: Optional[Progress] = None,
+    chunk_rows: int = 32_768,
+    *,
+    meta: Optional[Sequence[str]] = None,
+    missing: str = "error",
+) -> Iterator[CandidateTable]:
+    """The candidates of the CSV file at ``path`` as tables of about ``chunk_rows`` rows, read
+    and checked as :func:`read_candidates` does, so that a large file is never held whole.
+
+    Parts come as soon as every column's role is decided; under ``missing="median"`` (which needs
+    the whole file) or while a column has only blank cells so far, rows are held until they can
+    be. The file's features are compared with ``expected_features`` before the first part. An
+    InputError can come after some parts: the caller adds them in one transaction and rolls it
+    back. Every part carries the feature names, metadata columns and rule; the last part's
+    ``missing`` describes the whole file (a last part may have no rows).
+    """
+    if chunk_rows < 1:
+        raise ValueError(f"chunk_rows must be at least 1, got {chunk_rows}")
+    if missing not in MISSING_TREATMENTS:
+        raise ValueError(f"missing must be one of {', '.join(MISSING_TREATMENTS)}, got {missing!r}")
+    name = os.fspath(path)
+    csv.field_size_limit(max(csv.field_size_limit(), FIELD_SIZE_LIMIT))
+    try:
+        with _open(name) as raw:
+            total_bytes = os.fstat(raw.fileno()).st_size
+            chunks = _read_chunks(raw, name, chunk_rows)
+            plan = _Plan(name, next(chunks), id_column, labels_column, features, meta, missing,
+                         expected_features)
+            for chunk in chunks:
+                plan.add(chunk)
+                if progress is not None:
+                    progress(plan.n_rows, chunk.bytes_done, total_bytes)
+                part = plan.drain()
+                if part is not None:
+                    yield part
+        if plan.n_rows == 0:
+            raise InputError(f"{name}: no rows (the file has only a header)")
+    except OSError as exc:
+        raise InputError(f"{name}: cannot be read ({exc.strerror or exc})") from None
+    yield plan.drain(final=True)
+
+
 def _open(name: str):
     """Open ``name`` for binary reading, turning OS errors into one-line messages."""
     try:
@@ -301,6 +350,7 @@ class _Plan:
         self.first_filled: dict[int, tuple[int, str]] = {}
         self.first_blank: dict[int, int] = {}
         self.missing = missing
+        self._settled = False
         self.expected = None
         if expected_features is not None:
             self.expected = [column.strip() for column in expected_features]
@@ -512,29 +562,46 @@ class _Plan:
         """Settle the columns still pending (all blank: metadata), compare the features with
         the store's (only now, so that the file's own faults are reported first), apply the
         treatment of empty cells and assemble the table."""
-        self.pending = []
-        self._check_expected()
-        order = self._feature_order()
-        X = np.empty((self.n_rows, len(order)), dtype=np.float64)
+        return self.drain(final=True)
+
+    def drain(self, final: bool = False) -> Optional[CandidateTable]:
+        """The rows gathered since the last drain as a table, and forget them; None while a
+        column's role is undecided or the treatment needs the whole file ("median"), unless
+        ``final``. Its ``missing`` counts every part so far; the final part's is the file's."""
+        if not final and (self.pending or self.missing == "median"):
+            return None
+        if final:
+            self.pending = []
+        if not self._settled:
+            self._check_expected()
+            self._order = self._feature_order()
+            self._names = [self.columns[j] for j in self._order]
+            self._summary = MissingCells(self.missing)
+            self._settled = True
+        order, names, missing = self._order, self._names, self._summary
+        n_part = len(self.keys)
+        X = np.empty((n_part, len(order)), dtype=np.float64)
         for position, j in enumerate(order):
-            X[:, position] = np.concatenate(self.floats.pop(j))
-        names = [self.columns[j] for j in order]
-        missing = MissingCells(self.missing)
+            if n_part:
+                X[:, position] = np.concatenate(self.floats[j])
+            self.floats[j] = []
         counts = np.count_nonzero(np.isnan(X), axis=0)
-        missing.per_column = {name: int(n) for name, n in zip(names, counts) if n}
+        for name, n in zip(names, counts):
+            if n:
+                missing.per_column[name] = missing.per_column.get(name, 0) + int(n)
         keep = None
         if self.missing == "median":
             missing.filled_with = self._fill_medians(X, names, counts)
-        elif self.missing == "drop-row" and missing.per_column:
+        elif self.missing == "drop-row" and counts.any():
             keep = ~np.isnan(X).any(axis=1)
-            if not keep.any():
-                raise InputError(
-                    f"{self.name}: every row has an empty feature cell, so --missing drop-row "
-                    "leaves nothing to import"
-                )
             X = X[keep]
-            missing.dropped_rows = self.n_rows - len(X)
+            missing.dropped_rows += n_part - len(X)
             missing.first_dropped_line = min(self.first_blank.values())
+        if final and self.missing == "drop-row" and missing.dropped_rows == self.n_rows:
+            raise InputError(
+                f"{self.name}: every row has an empty feature cell, so --missing drop-row "
+                "leaves nothing to import"
+            )
         meta_indices = sorted(self.texts)
         meta_columns = [self.columns[j] for j in meta_indices]
         if meta_indices:
@@ -542,10 +609,10 @@ class _Plan:
             meta = [dict(zip(meta_columns, row)) for row in _kept(rows, keep)]
         else:
             meta = [{} for _ in range(len(X))]
-        return CandidateTable(
+        table = CandidateTable(
             keys=list(_kept(self.keys, keep)),
             X=X,
-            feature_names=names,
+            feature_names=list(names),
             meta=meta,
             meta_columns=meta_columns,
             labels=list(_kept(self.labels, keep)) if self.labels_index is not None else None,
@@ -553,6 +620,9 @@ class _Plan:
             feature_rule=self.rule,
             missing=missing,
         )
+        self.keys, self.labels = [], []
+        self.texts = {j: [] for j in self.texts}
+        return table
 
     def _fill_medians(self, X: np.ndarray, names: list[str], counts: np.ndarray) -> dict:
         """Fill the empty (NaN) cells of each column of X with the median of its filled cells."""

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Optional
 
-from labelq.ingest import read_candidates
+from labelq.ingest import stream_candidates
 from labelq.loop import settings
 from labelq.loop.refit import Progress, asked_strategy, ensure_fit
 from labelq.store import Store
@@ -42,19 +42,27 @@ class ImportResult:
 def import_candidates(store: Store, csv_path: Path, id_column: str, features=None,
                       labels_column: Optional[str] = None, by: str = "import",
                       progress=None, meta=None, missing: str = "error") -> ImportResult:
-    """Read, validate and add a CSV of candidates in one transaction (nothing added on error).
+    """Read, validate and add a CSV of candidates in one transaction (nothing added on error),
+    streamed: parts of about 32,768 rows go into the store as they are read.
 
     ``features``/``meta`` set the split of the columns and ``missing`` the treatment of empty
     feature cells, as in :func:`labelq.ingest.read_candidates`.
     """
-    table = read_candidates(csv_path, id_column, features=features, labels_column=labels_column,
-                            expected_features=store.feature_names or None, progress=progress,
-                            meta=meta, missing=missing)
-    store.add_candidates(table.keys, table.X, table.meta, table.feature_names,
-                         labels=table.labels, by=by)
-    n_labels = sum(1 for v in (table.labels or []) if v is not None)
+    parts = stream_candidates(csv_path, id_column, features=features, labels_column=labels_column,
+                              expected_features=store.feature_names or None, progress=progress,
+                              meta=meta, missing=missing)
+    seen = {"labels": 0, "last": None}
+
+    def counted():
+        for part in parts:  # streamed into the store part by part (labelq.store.columns)
+            seen["labels"] += sum(1 for v in (part.labels or []) if v is not None)
+            seen["last"] = part
+            yield part
+
+    added = store.add_candidate_parts(counted(), by=by)
+    table = seen["last"]
     gaps = table.missing
-    return ImportResult(len(table.keys), n_labels, table.feature_names, table.meta_columns,
+    return ImportResult(added, seen["labels"], table.feature_names, table.meta_columns,
                         table.feature_rule, gaps.treatment, gaps.per_column, gaps.dropped_rows,
                         gaps.first_dropped_line, gaps.filled_cells, gaps.filled_with)
 

@@ -1,7 +1,8 @@
 """The pool: importing candidates, their features, keys and metadata, and pool-wide feature scaling."""
 
 import json
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
 from itertools import repeat
 from typing import Any, NoReturn
 
@@ -76,42 +77,47 @@ class PoolMixin(StoreCore):
         _validate_import(keys, X, meta, feature_names, labels)
         if not keys:
             return 0
+        part = ImportPart(list(keys), X, list(meta), list(feature_names), labels)
+        return self.add_candidate_parts([part], by=by)
+
+    def add_candidate_parts(self, parts: Iterable["ImportPart"], by: str = "import") -> int:
+        """Add the candidates of ``parts`` (objects with ``keys``, ``X``, ``meta``,
+        ``feature_names`` and ``labels``, such as labelq.ingest.CandidateTable) in one
+        transaction, one part at a time, so that a large import is never held whole; the number
+        added. An exception from the iterable (a bad row late in a file) rolls everything back.
+
+        Every part must name the same features; the rest is as `add_candidates`. The candidates
+        get one event mark, and their features go into feature blocks part by part.
+        """
+        added = 0
         with self._write() as connection:
-            _ensure_schema(connection, list(feature_names))
-            if labels is not None:
-                labels = _resolve_labels(connection, labels)
             # ids given, contiguous after the largest (the write lock keeps other imports out)
             first_id = (
                 1 + connection.execute(text("SELECT COALESCE(MAX(id), 0) FROM candidates")).scalar_one()
             )
-            now = utc_now()
-            mark = bump_event_mark(connection)
-            try:
-                bulk_insert(
-                    connection, "candidates", _CANDIDATE_COLUMNS,
-                    zip(range(first_id, first_id + len(keys)), keys, map(json.dumps, meta),
-                        repeat(now), repeat(mark)),
-                )
-            except ConstraintViolation:
-                raise DuplicateKeyError(
-                    f"candidate key {_first_stored_key(connection, keys, first_id)!r} is already in the store"
-                ) from None
-            insert_features(connection, np.arange(first_id, first_id + len(keys), dtype=np.int64),
-                            X, mark)
+            now, mark, names = utc_now(), None, None
+            for part in parts:
+                X = np.asarray(part.X, dtype=np.float64)
+                _validate_import(part.keys, X, part.meta, part.feature_names, part.labels)
+                if names is None:
+                    names = list(part.feature_names)
+                    _ensure_schema(connection, names)
+                elif list(part.feature_names) != names:
+                    raise ValueError("every part of an import must name the same features")
+                if not part.keys:
+                    continue
+                if mark is None:
+                    mark = bump_event_mark(connection)
+                start = first_id + added
+                _insert_part(connection, part, X, start, now, mark, by)
+                added += len(part.keys)
+            if not added:
+                return 0
             if not is_sqlite(connection):  # the id sequence follows the ids given
                 connection.execute(text(
                     "SELECT setval(pg_get_serial_sequence('candidates', 'id'), MAX(id)) FROM candidates"))
-            if labels is not None:
-                bulk_insert(
-                    connection, "label_events", _LABEL_COLUMNS,
-                    (
-                        (first_id + i, label, by, now, mark)
-                        for i, label in enumerate(labels)
-                        if label is not None
-                    ),
-                )
-            _update_scaling(connection, X.shape[1])
-        return len(keys)
+            _update_scaling(connection, len(names))
+        return added
 
     def counts(self) -> dict[str, int]:
         """Numbers of candidates, labelled candidates and skipped candidates."""
@@ -196,6 +202,42 @@ class PoolMixin(StoreCore):
             meta=json_object(meta),
             label=label,
             skipped=bool(skipped),
+        )
+
+
+@dataclass
+class ImportPart:
+    """Candidates to add: keys (m,), features X (m, d), metadata (m,), feature names (d,) and
+    labels (m,) or None; labelq.ingest.CandidateTable has the same fields."""
+
+    keys: list[str]
+    X: np.ndarray
+    meta: list[dict[str, Any]]
+    feature_names: list[str]
+    labels: Sequence[str | None] | None = None
+
+
+def _insert_part(connection: Connection, part, X: np.ndarray, first_id: int, now: str, mark: int,
+                 by: str) -> None:
+    """Candidate rows, feature blocks and label events of one part, ids from ``first_id``."""
+    keys = part.keys
+    labels = None if part.labels is None else _resolve_labels(connection, part.labels)
+    try:
+        bulk_insert(
+            connection, "candidates", _CANDIDATE_COLUMNS,
+            zip(range(first_id, first_id + len(keys)), keys,
+                ("{}" if not m else json.dumps(m) for m in part.meta), repeat(now), repeat(mark)),
+        )
+    except ConstraintViolation:
+        raise DuplicateKeyError(
+            f"candidate key {_first_stored_key(connection, keys, first_id)!r} is already in the store"
+        ) from None
+    insert_features(connection, np.arange(first_id, first_id + len(keys), dtype=np.int64), X, mark)
+    if labels is not None:
+        bulk_insert(
+            connection, "label_events", _LABEL_COLUMNS,
+            ((first_id + i, label, by, now, mark) for i, label in enumerate(labels)
+             if label is not None),
         )
 
 
