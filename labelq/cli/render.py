@@ -240,12 +240,24 @@ def print_status(con: Console, doc) -> None:
     snap = doc["snapshot"]
     if snap is not None:
         kappa = snap["kappa"]
+        sample = snap.get("sample")
+        se = (sample or {}).get("se") or {}
+
+        def pm(name, digits):  # "+- standard error" when the figure is a sample's estimate
+            return f" +- {se[name]:,.{digits}f}" if name in se else ""
+
         con.print(key_value_table([
-            ("mean entropy", f"{snap['mean_entropy']:.3f} bits"),
-            ("uncertain (top p < 0.8)", f"{snap['n_uncertain']:,}"),
-            ("expected accuracy", f"{snap['expected_accuracy']:.3f} (the model's own estimate)"),
+            ("mean entropy", f"{snap['mean_entropy']:.3f}{pm('mean_entropy', 3)} bits"),
+            ("uncertain (top p < 0.8)", f"{snap['n_uncertain']:,}{pm('n_uncertain', 0)}"),
+            ("expected accuracy", f"{snap['expected_accuracy']:.3f}"
+                                  f"{pm('expected_accuracy', 3)} (the model's own estimate)"),
             ("agreement with previous fit", "-" if kappa is None else f"kappa {kappa:.3f}"),
         ]))
+        if sample:
+            con.print(f"Pool figures estimated from a fixed seeded sample of {sample['rows']:,} "
+                      f"of {sample['of']:,} unlabelled candidates (+- one standard error); "
+                      "`labelq export predictions` computes every candidate exactly.",
+                      markup=False)
     agreement = doc.get("agreement")
     if agreement is not None:
         con.print(f"Double labels: {', '.join(agreement['labellers'])} agreed on "

@@ -102,13 +102,14 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
     """
     lead = leading_factor(model, m) if lead is None else lead
     m = lead.factor.shape[0]
-    Xs = model._transform(X)
+    X = np.asarray(X)
+    model._transform(X[:0] if X.ndim == 2 else X)  # shapes now, values chunk by chunk
     n = model._Xs.shape[0]
     if chunk_size is None:
         chunk_size = min(65536, max(256, POOL_CHUNK_BYTES // (12 * n)))
     if int(chunk_size) < 1 or int(n_jobs) < 1:
         raise ValueError(f"chunk_size and n_jobs must be >= 1, got {chunk_size!r}, {n_jobs!r}")
-    chunk = max(1, min(int(chunk_size), len(Xs)))
+    chunk = max(1, min(int(chunk_size), len(X)))
     train = model._Xs[lead.order]  # the leading rows first: their kernel columns are a slice
     weights = model.posterior_.weights[lead.order]
     scale_norm = float(np.linalg.norm(lead.scales))
@@ -119,7 +120,11 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
     def work(start):
         if not hasattr(local, "kernel"):  # one buffer per worker serves all its chunks
             local.kernel = np.empty((chunk, n))
-        Xc = Xs[start:start + chunk]
+        try:  # standardised chunk by chunk: no second copy of a large pool
+            Xc = model._transform(X[start:start + chunk])
+        except ValueError:
+            model._transform(X)  # the same message, with the row counted from the pool's start
+            raise
         Ks = model.kernel_(Xc, train, out=local.kernel[:len(Xc)])
         kss = model.kernel_.diag(Xc)
         mean = Ks @ weights
@@ -129,7 +134,7 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
         var = np.maximum(var, TINY_VARIANCE)
         return model._proba_from_latent(mean, var), mean, var
 
-    starts = range(0, len(Xs), chunk)
+    starts = range(0, len(X), chunk)
     if int(n_jobs) > 1 and len(starts) > 1:
         with ThreadPoolExecutor(min(int(n_jobs), len(starts))) as pool:
             parts = list(pool.map(work, starts))

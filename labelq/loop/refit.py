@@ -129,7 +129,8 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     # the engine is imported here, when a refit is due, not when a command starts: `next` on
     # current scores never loads SciPy
     from labelq.policy import rank_pool, score_pool, uniform_scores
-    from labelq.review import cohen_kappa, snapshot, stop_set
+    from labelq.review import cohen_kappa, stop_set
+    from labelq.review.snapshot import sampled_snapshot, snapshot
     from labelq.review.blas_threads import single_blas_thread
 
     t0 = time.perf_counter()
@@ -149,8 +150,26 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
                                      progress, reuse_after)
     if progress:
         progress("scoring", 0, len(state.ids))
+    exact = None
+    summary_rows = None
     if outcome is None:
         scores = uniform_scores(len(state.ids), len(classes))
+    elif _bounded(state, classes, strategy, unlabelled):
+        # exact only where it can reach the head, plus the rows read elsewhere (labelled,
+        # audit items, the stop set inside the summary sample): labelq.policy.bounded
+        from labelq.policy.bounded import score_pool_bounded
+
+        summary_rows = state.positions(stop_set(state.ids, size=settings.SUMMARY_SAMPLE))
+        must = np.concatenate([summary_rows, np.flatnonzero(~unlabelled),
+                               state.positions(_audit_ids(store, state))])
+        eligible = unlabelled & ~np.isin(state.ids, state.skipped)
+        with single_blas_thread():
+            scores, exact = score_pool_bounded(
+                outcome.model, state.X, policy, strategy, unlabelled, eligible,
+                # the spread batch reads the batch_shortlist rows of highest priority
+                head=max(settings.EXACT_HEAD, policy.batch_shortlist, policy.head_size),
+                exact_rows=np.unique(must),
+                n_jobs=settings.POOL_WORKERS)
     else:
         with single_blas_thread():  # chunks of predict_pool's default size (a 48 MiB budget)
             scores = score_pool(outcome.model, state.X, policy, strategy, unlabelled,
@@ -173,12 +192,24 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     summarised = unlabelled.copy()
     if not summarised.any():  # every candidate labelled: summarise the whole pool instead
         summarised[:] = True
-    snap = snapshot(scores.proba[summarised], classes, uncertain_below=settings.UNCERTAIN_BELOW)
+    sample = None
+    if exact is not None and not exact[summarised].all():
+        # the rest of the pool holds bounds: estimate from the seeded sample, with its errors
+        rows = summary_rows[summarised[summary_rows]]
+        snap, sample = sampled_snapshot(scores.proba[rows], classes, int(summarised.sum()),
+                                        uncertain_below=settings.UNCERTAIN_BELOW)
+    else:
+        snap = snapshot(scores.proba[summarised], classes,
+                        uncertain_below=settings.UNCERTAIN_BELOW)
     snap["agreement_kappa"] = kappa
 
     model = outcome.model if outcome else None
     info = {"strategy": strategy, "cold_start": queue.cold, "reused": reused,
             "generation": generation}
+    if exact is not None:  # bounded: exact rows in double precision, the rest bounds
+        info["exact_rows"], info["double"] = int(exact.sum()), True
+    if sample is not None:
+        info["summary"] = sample
     fit = {
         "session_id": session_id,
         "n_labels": n_labels,
@@ -201,8 +232,31 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     return store.record_fit(
         fit, state.ids, scores.proba, predicted, scores.p_top, p_low, p_high, scores.entropy,
         scores.margin, bald, scores.priority, queue.rank, snap, keep_models=settings.KEEP_MODELS,
-        reasons=queue.reasons.tolist(),
+        reasons=queue.reasons.tolist(), exact=exact,
     )
+
+
+def _bounded(state, classes, strategy, unlabelled) -> bool:
+    """Whether this fit scores the pool with bounds (labelq.policy.bounded): a pool above
+    settings.EXACT_POOL_UP_TO, a binary model, a strategy whose priority the variance bounds
+    (margin, entropy, random; BALD, EPIG and softmax models would be scored exactly everywhere,
+    in double precision, slower than score_pool), and more unskipped unlabelled candidates than
+    the exact head (else the head would reach into the skipped ones)."""
+    from labelq.policy.bounded import BOUNDED_STRATEGIES
+
+    if len(state.ids) <= settings.EXACT_POOL_UP_TO or len(classes) != 2:
+        return False
+    if strategy not in BOUNDED_STRATEGIES:
+        return False
+    unskipped = unlabelled & ~np.isin(state.ids, state.skipped)
+    return int(unskipped.sum()) > settings.EXACT_HEAD
+
+
+def _audit_ids(store, state) -> np.ndarray:
+    """Candidate ids of the audit items in the pool (their predictions are recorded from the
+    stored scores, so they are scored exactly)."""
+    ids = np.asarray([item.candidate_id for item in store.audit_items()], dtype=np.int64)
+    return ids[np.isin(ids, state.ids)]
 
 
 def previous_outcome(fit):

@@ -142,7 +142,11 @@ def latest_snapshot(store) -> Optional[dict]:
     last = store.last_fit()
     if last is None:
         return None
-    return _snapshot_doc(next((s for s in store.snapshots() if s["fit_id"] == last.id), None))
+    doc = _snapshot_doc(next((s for s in store.snapshots() if s["fit_id"] == last.id), None))
+    if doc is not None:
+        # a large pool's figures are estimated from a seeded sample (labelq.loop.settings)
+        doc["sample"] = (last.info or {}).get("summary")
+    return doc
 
 
 def _snapshot_doc(snap) -> Optional[dict]:
@@ -441,7 +445,8 @@ def _predictions_text(store, as_json: bool) -> str:
     columns = ["key", "predicted"] + [f"p_{c}" for c in classes] + ["p_low", "p_high", "entropy",
                                                                      "labelled", "label"]
     rows, meta_cols = [], []
-    for chunk in store.scores():
+    exact = ExactScores(store)
+    for chunk in map(exact, store.scores()):
         keys = store.keys(chunk.candidate_id)
         metas = store.metas(chunk.candidate_id)
         for i, cid in enumerate(chunk.candidate_id):
@@ -459,6 +464,55 @@ def _predictions_text(store, as_json: bool) -> str:
                 row.setdefault(k, v)
             rows.append(row)
     return _table_text(rows, columns + [m for m in meta_cols if m not in columns], as_json)
+
+
+class ExactScores:
+    """Make a chunk of the last fit's stored scores exact in double precision: rows stored with
+    a bounded latent variance (a large pool's fit, labelq.policy.bounded), and every row of a
+    fit scored in mixed precision (within 2e-5 of double; GPClassifier.predict_pool), are
+    computed again from the fit's model and settings with the scoring the fit uses for its exact
+    rows (every member's latent in double precision)."""
+
+    def __init__(self, store):
+        self.store = store
+        self._parts = None
+
+    def __call__(self, chunk):
+        from dataclasses import replace
+
+        if self._parts is None:
+            from labelq.policy import PolicySettings
+
+            fit = self.store.last_fit()
+            model = _model(fit)
+            double = bool((fit.info or {}).get("double"))  # its exact rows are in double
+            self._parts = (model, double, model is not None and PolicySettings.from_dict(
+                fit.settings), *self.store.feature_scaling())
+        model, double, policy, mean_, scale = self._parts
+        if model is None:  # before any model: the stored uniform probabilities are exact
+            return chunk
+        exact = chunk.exact if double and chunk.exact is not None else np.zeros(
+            len(chunk.candidate_id), dtype=bool)
+        if exact.all():
+            return chunk
+        from labelq.policy import score_pool
+        from labelq.policy.bounded import in_double
+        from labelq.review.blas_threads import single_blas_thread
+
+        redo = np.flatnonzero(~exact)
+        X = (self.store.features(chunk.candidate_id[redo]) - mean_) / scale
+        with single_blas_thread():
+            fresh = score_pool(in_double(model), X, policy, "margin",
+                               np.ones(len(redo), dtype=bool), full=False,
+                               n_jobs=settings.POOL_WORKERS)
+        low, high = fresh.interval()
+        values = {name: getattr(chunk, name).copy() for name in
+                  ("probabilities", "predicted", "p_top", "p_low", "p_high", "entropy")}
+        for name, new in (("probabilities", fresh.proba), ("predicted", fresh.predicted),
+                          ("p_top", fresh.p_top), ("p_low", low), ("p_high", high),
+                          ("entropy", fresh.entropy)):
+            values[name][redo] = new
+        return replace(chunk, exact=np.ones(len(chunk.exact), dtype=bool), **values)
 
 
 def _table_text(rows, columns, as_json) -> str:

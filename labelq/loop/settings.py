@@ -39,3 +39,18 @@ CLAIM_SECONDS = 300
 
 POOL_WORKERS = max(1, min(4, os.cpu_count() or 1))
 """Threads scoring pool chunks at once (each with one BLAS thread)."""
+
+EXACT_POOL_UP_TO = 20_000
+"""Pools up to this many candidates are scored exactly everywhere at every fit. Above it a fit
+computes exact figures only where they can reach the head of the queue (`EXACT_HEAD` rows), for
+the labelled candidates, the audit items and a fixed seeded sample of `SUMMARY_SAMPLE` candidates
+(the pool's snapshot is estimated from it, with standard errors); every other row holds bounds
+(labelq.policy.bounded) and `export predictions` computes it exactly when asked."""
+
+EXACT_HEAD = 1_000
+"""Rows at the head of the queue whose priorities are exact (labelq.store.sql.QUEUE_HEAD_ROWS)."""
+
+SUMMARY_SAMPLE = 2_000
+"""Size of the seeded sample (bottom-k of the candidate ids, labelq.review.stop_set) from which a
+large pool's snapshot is estimated (the same ids as the stop set's; mean entropy to about
++-0.01 bits)."""

@@ -7,12 +7,15 @@ or EP; one model or a grid average of them) this module
 1. bounds every row's latent variance from above with the first LEAD_ROWS pseudo-observations
    in pivoted order (labelq.gp.bounds: the mean is exact, the bound costs LEAD_ROWS^2 flops a
    row);
-2. bounds each row's priority from above: at a fixed latent mean, a binary averaged
-   probability (GPML eq. 3.25 with the link's `average`) moves monotonically towards 1/2 as the
-   latent variance grows (d/dv E[g(f)] = E[g''(f)] / 2 for f ~ N(mu, v), and the logistic and
-   the normal cdf are concave on the side of 0 where mu lies; probit in closed form, GPML eq.
-   3.82), so a variance in [0, var_upper] puts each member's probability between its values at
-   the two ends and the mixture's in the sum of those ranges. Margin (p1 - p2) and entropy are
+2. bounds each row's priority from above: at a fixed latent mean mu, a binary averaged
+   probability p(v) = E[g(f)], f ~ N(mu, v) (GPML eq. 3.25 with the link's `average`) moves
+   monotonically towards 1/2 as the variance v grows. For Gaussian smoothing
+   dp/dv = E[g''(f)] / 2 (the heat equation; from memory), and for the logistic and the normal
+   cdf g - 1/2 is odd with g'' < 0 on x > 0, so for mu > 0
+   E[g''(f)] = int_{x > 0} g''(x) (N(x; mu, v) - N(x; -mu, v)) dx <= 0 (mirrored for mu < 0;
+   for the probit also plain from Phi(mu / sqrt(1 + v)), GPML eq. 3.82). A variance in
+   [0, var_upper] therefore puts each member's probability between its values at the two ends,
+   and the mixture's in the weighted sum of those ranges. Margin (p1 - p2) and entropy are
    largest at the point of that range nearest 1/2;
 3. scores exactly, in decreasing order of that upper bound, until the next row's bound is below
    the `head`-th largest exact priority found so far among the eligible rows. No row left out
@@ -28,7 +31,7 @@ import numpy as np
 
 from labelq.acquire import priority
 from labelq.gp.bounds import bounded_prediction
-from labelq.policy.scoring import PoolScores, members, score_pool
+from labelq.policy.scoring import members, score_pool
 from labelq.policy.settings import PolicySettings
 
 BOUNDED_STRATEGIES = ("entropy", "margin", "random")
@@ -57,8 +60,9 @@ def score_pool_bounded(model, X, settings: PolicySettings, strategy: str, unlabe
 
     unlabelled : (N,) bool, as for `score_pool`.
     eligible : (N,) bool, the rows that may be ranked into the head (unlabelled, not skipped).
-    head : rows of the head (e.g. `PolicySettings.batch_shortlist`: the spread-out batch reads
-        that many rows of highest priority).
+    head : rows of the head. `rank_pool` reads the `PolicySettings.batch_shortlist` rows of
+        highest priority (the spread-out batch's shortlist; `head_size` for random), skipped
+        rows only when fewer unskipped ones are left: pass those in `exact_rows` then.
     exact_rows : optional int array of rows that must be exact whatever their priority
         (labelled rows, audit items, a summary sample).
     n_jobs : worker threads for the pool's chunks (give BLAS one thread per worker).
@@ -100,13 +104,14 @@ def score_pool_bounded(model, X, settings: PolicySettings, strategy: str, unlabe
         raise ValueError(f"exact_rows must be a 1-D array of row indices in [0, {n_rows})")
     ms, w = members(model)
     if strategy not in BOUNDED_STRATEGIES or not all(_has_factor(m) for m in ms):
-        scores = score_pool(_in_double(model), X, settings, strategy, unlabelled, True, n_jobs)
+        scores = score_pool(in_double(model), X, settings, strategy, unlabelled, full=True,
+                            n_jobs=n_jobs)
         return scores, np.ones(n_rows, dtype=bool)
 
     link = model.likelihood_
     bounds = [bounded_prediction(m, X, LEAD_ROWS, n_jobs=n_jobs) for m in ms]
     scores = score_pool(_Members([_Given(b) for b in bounds], w, link), X, settings, strategy,
-                        unlabelled, True)
+                        unlabelled, full=True)
     if strategy != "random":
         scores.priority = _priority_upper(strategy, bounds, w, link, settings.seed)
     upper = scores.priority.copy()
@@ -120,7 +125,7 @@ class _Exact:
     """Exact scoring of chosen rows into `scores` (marked in `exact`), and the head search."""
 
     def __init__(self, model, X, settings, strategy, unlabelled, n_jobs, scores, exact):
-        self.model, self.X, self.settings, self.strategy = _in_double(model), X, settings, strategy
+        self.model, self.X, self.settings, self.strategy = in_double(model), X, settings, strategy
         self.unlabelled, self.n_jobs, self.scores, self.exact = unlabelled, n_jobs, scores, exact
 
     def score(self, rows):
@@ -130,7 +135,7 @@ class _Exact:
         if rows.size == 0:
             return
         part = score_pool(self.model, self.X[rows], self.settings, self.strategy,
-                          self.unlabelled[rows], True, self.n_jobs)
+                          self.unlabelled[rows], full=True, n_jobs=self.n_jobs)
         for name in _FIGURES:
             getattr(self.scores, name)[rows] = getattr(part, name)
         if self.strategy != "random":  # a random priority is a draw over the whole pool
@@ -138,22 +143,24 @@ class _Exact:
         self.exact[rows] = True
 
     def head(self, upper, eligible, head, rows):
-        """Score `rows`, then eligible rows by decreasing `upper` until no row left can reach
-        the `head`-th largest exact priority among eligible rows (blocks of head, 2 head, ...)."""
-        order = np.flatnonzero(eligible)
-        order = order[np.argsort(-upper[order], kind="stable")]
-        descending = -upper[order]  # ascending: searchsorted finds the rows still in reach
-        done, block = min(head, order.size), head
-        self.score(np.concatenate([rows, order[:done]]))
-        while 0 < done < order.size:
-            known = self.scores.priority[eligible & self.exact]
-            floor = np.partition(known, -head)[-head]  # order[:head] are among `known`
-            reach = int(np.searchsorted(descending, -floor, side="right"))
-            if reach <= done:
-                break
-            end = min(reach, done + block)
-            self.score(order[done:end])
-            done, block = end, 2 * block
+        """Score `rows` and the `head` eligible rows of largest `upper`, then the other eligible
+        rows by decreasing `upper` (blocks of head, 2 head, ...) until none left can reach the
+        `head`-th largest exact priority among eligible rows."""
+        free = np.flatnonzero(eligible)
+        if head == 0 or free.size <= head:
+            self.score(np.concatenate([rows, free]) if head else rows)
+            return
+        first = free[np.argpartition(-upper[free], head - 1)[:head]]
+        self.score(np.concatenate([rows, first]))
+        block = head
+        while True:
+            known = self.scores.priority[eligible & self.exact]  # holds `first`: >= head rows
+            floor = np.partition(known, -head)[-head]
+            reach = free[(upper[free] >= floor) & ~self.exact[free]]
+            if reach.size == 0:
+                return
+            self.score(reach[np.argsort(-upper[reach], kind="stable")[:block]])
+            block *= 2
 
 
 def _priority_upper(strategy, bounds, w, link, seed):
@@ -191,7 +198,7 @@ def _mask(mask, n_rows, name):
     return mask
 
 
-def _in_double(model):
+def in_double(model):
     """The model as `score_pool` reads it, each member predicting in double precision."""
     ms, w = members(model)
     return _Members([_Double(m) for m in ms], w, model.likelihood_)

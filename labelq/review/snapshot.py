@@ -54,3 +54,40 @@ def snapshot(proba: np.ndarray, classes: Sequence[str], uncertain_below: float =
         "expected_accuracy": float(top.mean()),
         "class_counts": {c: int(k) for c, k in zip(classes, counts)},
     }
+
+
+def sampled_snapshot(proba: np.ndarray, classes: Sequence[str], n_pool: int,
+                     uncertain_below: float = 0.8) -> tuple[dict, dict]:
+    """`snapshot` of a pool of ``n_pool`` unlabelled candidates estimated from a simple random
+    sample of them (``proba``: the sample's probabilities, computed exactly).
+
+    Returns ``(snap, sample)``: ``snap`` has `snapshot`'s keys, the means estimated by the
+    sample means and the counts (``n_uncertain``, ``class_counts``) by the sample proportions
+    times ``n_pool``, rounded; ``sample`` is ``{"rows": m, "of": n_pool, "se": {...}}`` with the
+    standard error of each estimate (s / sqrt(m) times the finite-population correction
+    sqrt(1 - m / n_pool); Cochran, Sampling Techniques, 3rd ed. 1977, eqs. 2.19 and 3.8).
+    """
+    snap = snapshot(proba, classes, uncertain_below)
+    p = np.asarray(proba, dtype=float)
+    m = p.shape[0]
+    if m == 0 or n_pool <= 0:
+        return snap, {"rows": m, "of": n_pool, "se": None}
+    fpc = np.sqrt(max(0.0, 1.0 - m / n_pool))
+
+    def se(values: np.ndarray) -> float:
+        return float(values.std(ddof=1) / np.sqrt(m) * fpc) if m > 1 else float("nan")
+
+    top = p.max(axis=1)
+    uncertain = (top < uncertain_below).astype(float)
+    predicted = p.argmax(axis=1)
+    scale = n_pool / m
+    snap["n_uncertain"] = int(round(uncertain.sum() * scale))
+    snap["class_counts"] = {c: int(round(k * scale)) for c, k in snap["class_counts"].items()}
+    errors = {
+        "mean_entropy": se(entropy_bits(p)),
+        "expected_accuracy": se(top),
+        "n_uncertain": se(uncertain) * n_pool,
+        "class_counts": {str(c): se((predicted == k).astype(float)) * n_pool
+                         for k, c in enumerate(classes)},
+    }
+    return snap, {"rows": m, "of": n_pool, "se": errors}

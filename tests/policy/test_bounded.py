@@ -3,9 +3,10 @@
 Pools: scikit-learn's bundled breast cancer data, a scikit-learn make_classification pool and
 the invented orchard demo (labelq.demo; three grades, and export against the rest as a binary
 pool). Models are fitted as the label loop fits them (labelq.policy.fit_labels with
-labelq.loop.settings.POLICY): a grid average from few labels and a single model with learnt
-hyperparameters from more. The reference is score_pool itself with every member predicting in
-double precision, as the issue asks: the head and its figures must be the same.
+labelq.loop.settings.POLICY, and the same with EP and the probit link on breast cancer): a grid
+average from few labels and a single model with learnt hyperparameters from more. The reference
+is score_pool itself with every member predicting in double precision, as the issue asks: the
+head and its figures must be the same.
 """
 import numpy as np
 import pytest
@@ -50,15 +51,18 @@ def _orchard(binary):
 
 POOLS = {"breast-cancer": _breast_cancer, "synthetic": _synthetic,
          "orchard-binary": lambda: _orchard(True), "orchard": lambda: _orchard(False)}
-CASES = {  # (pool, labels, the fit mode labelq.policy.fit_labels reaches there)
-    "breast-cancer-average": ("breast-cancer", 12, "average"),
-    "breast-cancer-learnt": ("breast-cancer", 80, "learnt"),
-    "synthetic-average": ("synthetic", 40, "average"),
-    "synthetic-learnt": ("synthetic", 400, "learnt"),
-    "orchard-binary-average": ("orchard-binary", 40, "average"),
-    "orchard-binary-learnt": ("orchard-binary", 120, "learnt"),
-    "orchard-average": ("orchard", 40, "average"),
-    "orchard-learnt": ("orchard", 80, "learnt"),
+EP = POLICY.with_(inference="ep", link="probit")
+CASES = {  # (pool, labels, policy, the fit mode labelq.policy.fit_labels reaches there)
+    "breast-cancer-average": ("breast-cancer", 12, POLICY, "average"),
+    "breast-cancer-learnt": ("breast-cancer", 80, POLICY, "learnt"),
+    "breast-cancer-ep-average": ("breast-cancer", 12, EP, "average"),
+    "breast-cancer-ep-learnt": ("breast-cancer", 80, EP, "learnt"),
+    "synthetic-average": ("synthetic", 40, POLICY, "average"),
+    "synthetic-learnt": ("synthetic", 400, POLICY, "learnt"),
+    "orchard-binary-average": ("orchard-binary", 40, POLICY, "average"),
+    "orchard-binary-learnt": ("orchard-binary", 120, POLICY, "learnt"),
+    "orchard-average": ("orchard", 40, POLICY, "average"),
+    "orchard-learnt": ("orchard", 80, POLICY, "learnt"),
 }
 _fitted = {}
 
@@ -66,10 +70,10 @@ _fitted = {}
 def _case(name):
     """(X, unlabelled, labelled rows, model) of a case, fitted once per test session."""
     if name not in _fitted:
-        pool, n_labels, mode = CASES[name]
+        pool, n_labels, policy, mode = CASES[name]
         X, y = POOLS[pool]()
         labelled = np.random.default_rng(0).permutation(len(y))[:n_labels]
-        out = fit_labels(POLICY, X[labelled], y[labelled], sorted(set(y)), None,
+        out = fit_labels(policy, X[labelled], y[labelled], sorted(set(y)), None,
                          median_distance(X))
         assert out.mode == mode
         unlabelled = np.ones(len(y), dtype=bool)
@@ -155,11 +159,12 @@ def test_head_zero_and_a_head_beyond_the_pool():
 
 
 @pytest.mark.parametrize("bad", [
-    dict(eligible=np.ones(3, dtype=bool)), dict(head=-1), dict(head=2.5),
-    dict(exact_rows=np.array([10**6])), dict(unlabelled=np.ones(569))])
+    {"eligible": np.ones(3, dtype=bool)}, {"head": -1}, {"head": 2.5},
+    {"exact_rows": np.array([10**6])}, {"unlabelled": np.ones(569)}])
 def test_bad_arguments_are_value_errors(bad):
     X, unlabelled, _, model = _case("breast-cancer-learnt")
-    args = dict(unlabelled=unlabelled, eligible=unlabelled, head=5, exact_rows=None) | bad
+    args = {"unlabelled": unlabelled, "eligible": unlabelled, "head": 5, "exact_rows": None}
+    args.update(bad)
     with pytest.raises(ValueError):
         score_pool_bounded(model, X, POLICY, "margin", args["unlabelled"], args["eligible"],
                            args["head"], exact_rows=args["exact_rows"])
@@ -170,7 +175,7 @@ def test_bad_arguments_are_value_errors(bad):
 def _fixed_models():
     """Laplace (logistic) and EP (probit) models on half of breast cancer, fixed kernel."""
     X, y = _breast_cancer()
-    kw = dict(lengthscale=5.0, signal_variance=4.0, optimize=False, standardize=False)
+    kw = {"lengthscale": 5.0, "signal_variance": 4.0, "optimize": False, "standardize": False}
     return X[::2], y[::2], X[1::2], {
         "laplace": GPClassifier(**kw).fit(X[::2], y[::2]),
         "ep": GPClassifier(inference="ep", link="probit", **kw).fit(X[::2], y[::2])}
