@@ -352,6 +352,7 @@ def print_history(con: Console, rows, chart: str) -> None:
               + (";\naudit: share right / items scored, random audit items so far "
                  "(`labelq audit`: interval)" if audited else ""),
               style="dim")
+    sample_note(con, rows)
     for r in rows:
         if r.get("relearnt"):
             change = r.get("accuracy_change")
@@ -361,6 +362,16 @@ def print_history(con: Console, rows, chart: str) -> None:
                       + ("" if change is None else
                          f"; expected accuracy {change:+.3f}"), markup=False, style="dim")
     con.print(chart)
+
+
+def sample_note(con: Console, rows) -> None:
+    """Say which rows' pool figures are estimates from the seeded sample (large pools)."""
+    sampled = [r for r in rows if r.get("sample")]
+    if sampled:
+        last = sampled[-1]["sample"]
+        con.print(f"{len(sampled):,} of {len(rows):,} rows estimate entropy, uncertain and exp. "
+                  f"acc. from a fixed seeded sample of {last['rows']:,} candidates (`labelq "
+                  "status` gives their standard errors).", style="dim", markup=False)
 
 
 def audit_cell(doc) -> str:
@@ -425,6 +436,7 @@ def print_grouped_history(con: Console, view, chart: str) -> None:
     if view["by"] == "session":
         legend.append(f"a sitting: one labeller's label events under {minutes} minutes apart")
     con.print("\n".join(legend), style="dim", markup=False)
+    sample_note(con, rows)
     con.print(chart)
 
 

@@ -126,7 +126,7 @@ def status(store) -> dict:
         "features": store.feature_names,
         "last_fit": _fit_summary(last),
         "stale": not is_current(store, last),
-        "snapshot": _snapshot_doc(snap),
+        "snapshot": _snapshot_doc(snap, last),
         "last_relearn": learnt[-1] if learnt else None,
         "advice": {"stop": advice.stop, "message": advice.message, "figures": advice.figures,
                    "flagged_classes": advice.flagged_classes},
@@ -142,19 +142,20 @@ def latest_snapshot(store) -> Optional[dict]:
     last = store.last_fit()
     if last is None:
         return None
-    doc = _snapshot_doc(next((s for s in store.snapshots() if s["fit_id"] == last.id), None))
-    if doc is not None:
-        # a large pool's figures are estimated from a seeded sample (labelq.loop.settings)
-        doc["sample"] = (last.info or {}).get("summary")
-    return doc
+    return _snapshot_doc(next((s for s in store.snapshots() if s["fit_id"] == last.id), None),
+                         last)
 
 
-def _snapshot_doc(snap) -> Optional[dict]:
+def _snapshot_doc(snap, fit) -> Optional[dict]:
+    """The snapshot as `status --json` gives it; ``sample`` is None when its figures cover the
+    whole pool, else the seeded sample they are estimated from: rows, of, and the standard
+    error of each (a large pool's bounded fit, labelq.loop.settings.EXACT_POOL_UP_TO)."""
     if snap is None:
         return None
     return {"mean_entropy": snap["mean_entropy"], "n_uncertain": snap["n_uncertain"],
             "expected_accuracy": snap["expected_accuracy"], "kappa": snap["agreement_kappa"],
-            "class_counts": snap["class_counts"]}
+            "class_counts": snap["class_counts"],
+            "sample": (fit.info or {}).get("summary") if fit is not None else None}
 
 
 def history(store) -> list[dict]:
@@ -197,6 +198,8 @@ def _fit_rows(fits, snapshots) -> list[dict]:
             "hyper_mode_before": before["hyper_mode"] if before else None,
             "relearnt": relearnt,
             "accuracy_change": change,
+            # a large pool's figures: estimates from the seeded sample, with standard errors
+            "sample": (fit.info or {}).get("summary") if fit else None,
         })
         before = rows[-1]
     return rows
@@ -306,6 +309,7 @@ def history_groups(events, fits, fit_rows, by: str, zone) -> list[dict]:
             "expected_accuracy": last["expected_accuracy"] if last else None,
             "relearnt": any(r["relearnt"] for r in members),
             "audit": last["audit"] if last else None,
+            "sample": last["sample"] if last else None,
             "fits": [r["fit"] for r in members],
         })
         before = entropy if entropy is not None else before
@@ -493,6 +497,7 @@ class ExactScores:
             return chunk
         exact = chunk.exact if double and chunk.exact is not None else np.zeros(
             len(chunk.candidate_id), dtype=bool)
+        exact = exact & np.isfinite(chunk.p_low)  # a large pool keeps intervals for its head only
         if exact.all():
             return chunk
         from labelq.policy import score_pool

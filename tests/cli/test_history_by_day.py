@@ -17,7 +17,8 @@ import pytest
 from labelq.cli.app import app
 
 GROUP_KEYS = {"group", "by", "start", "end", "labels_given", "labels_total", "mean_entropy",
-              "entropy_change", "n_uncertain", "expected_accuracy", "relearnt", "fits", "audit"}
+              "entropy_change", "n_uncertain", "expected_accuracy", "relearnt", "fits", "audit",
+              "sample"}
 
 
 def at(cli, when, *args, env=None):
