@@ -160,26 +160,10 @@ def read_candidates(
     ``progress(rows_done, bytes_done, total_bytes)`` is called once per chunk. Ids are stripped
     of surrounding whitespace, as are labels; metadata is kept verbatim.
     """
-    if chunk_rows < 1:
-        raise ValueError(f"chunk_rows must be at least 1, got {chunk_rows}")
-    if missing not in MISSING_TREATMENTS:
-        raise ValueError(f"missing must be one of {', '.join(MISSING_TREATMENTS)}, got {missing!r}")
-    name = os.fspath(path)
-    csv.field_size_limit(max(csv.field_size_limit(), FIELD_SIZE_LIMIT))
-    try:
-        with _open(name) as raw:
-            total_bytes = os.fstat(raw.fileno()).st_size
-            chunks = _read_chunks(raw, name, chunk_rows)
-            plan = _Plan(name, next(chunks), id_column, labels_column, features, meta, missing,
-                         expected_features)
-            for chunk in chunks:
-                plan.add(chunk)
-                if progress is not None:
-                    progress(plan.n_rows, chunk.bytes_done, total_bytes)
-        if plan.n_rows == 0:
-            raise InputError(f"{name}: no rows (the file has only a header)")
-    except OSError as exc:
-        raise InputError(f"{name}: cannot be read ({exc.strerror or exc})") from None
+    plan = None
+    for plan in _plans(path, id_column, features, labels_column, expected_features, progress,
+                       chunk_rows, meta, missing):
+        pass
     return plan.finish()
 
 
@@ -205,6 +189,19 @@ def stream_candidates(
     back. Every part carries the feature names, metadata columns and rule; the last part's
     ``missing`` describes the whole file (a last part may have no rows).
     """
+    plan = None
+    for plan in _plans(path, id_column, features, labels_column, expected_features, progress,
+                       chunk_rows, meta, missing):
+        part = plan.drain()
+        if part is not None:
+            yield part
+    yield plan.drain(final=True)
+
+
+def _plans(path, id_column, features, labels_column, expected_features, progress, chunk_rows,
+           meta, missing) -> Iterator["_Plan"]:
+    """The file's `_Plan`, yielded after each chunk of ``chunk_rows`` records is added to it
+    (at least once); InputError for a file without rows or that cannot be read."""
     if chunk_rows < 1:
         raise ValueError(f"chunk_rows must be at least 1, got {chunk_rows}")
     if missing not in MISSING_TREATMENTS:
@@ -221,14 +218,11 @@ def stream_candidates(
                 plan.add(chunk)
                 if progress is not None:
                     progress(plan.n_rows, chunk.bytes_done, total_bytes)
-                part = plan.drain()
-                if part is not None:
-                    yield part
+                yield plan
         if plan.n_rows == 0:
             raise InputError(f"{name}: no rows (the file has only a header)")
     except OSError as exc:
         raise InputError(f"{name}: cannot be read ({exc.strerror or exc})") from None
-    yield plan.drain(final=True)
 
 
 def _open(name: str):

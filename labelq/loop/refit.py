@@ -168,7 +168,7 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
                 outcome.model, state.X, policy, strategy, unlabelled, eligible,
                 # the spread batch reads the batch_shortlist rows of highest priority
                 head=max(settings.EXACT_HEAD, policy.batch_shortlist, policy.head_size),
-                exact_rows=np.unique(must),
+                exact_rows=np.unique(must), full=False,  # BALD only where it ranks
                 n_jobs=settings.POOL_WORKERS)
     else:
         with single_blas_thread():  # chunks of predict_pool's default size (a 48 MiB budget)

@@ -108,10 +108,12 @@ class FitsMixin(StoreCore):
             records["rank"] = rank
             records["exact"] = 1 if exact is None else np.asarray(exact, dtype=bool)
             if n:
-                order = np.argsort(ids, kind="stable")  # blocks hold ascending ids
-                if (np.diff(ids[order]) == 0).any():
-                    raise ValueError("candidate ids must be distinct")
-                insert_scores(connection, fit_id, records[order])
+                if not (np.diff(ids) > 0).all():  # blocks hold ascending ids
+                    order = np.argsort(ids, kind="stable")
+                    if (np.diff(ids[order]) == 0).any():
+                        raise ValueError("candidate ids must be distinct")
+                    records = records[order]
+                insert_scores(connection, fit_id, records)
             head = np.flatnonzero((rank >= 1) & (rank <= QUEUE_HEAD_ROWS))
             head = head[np.argsort(rank[head], kind="stable")]
             p_top = columns[1]
