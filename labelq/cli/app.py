@@ -448,8 +448,8 @@ def export(
     json: JsonOption = False,
 ):
     """Export the labels, the predictions for every candidate, or the fitted model (JSON)."""
-    with open_store(db) as store:
-        text = reports.export(store, what.value, as_json=json)
+    with open_store(db) as store, render.progress_bar("exporting") as update:
+        text = reports.export(store, what.value, as_json=json, progress=update)
     if output is None:
         typer.echo(text, nl=False)
     else:

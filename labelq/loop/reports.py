@@ -422,15 +422,16 @@ def candidate_view(store, key: str) -> dict:
     return view
 
 
-def export(store, what: str, as_json: bool = False) -> str:
-    """The text of `export labels|predictions|model` (CSV, or JSON with ``as_json``)."""
+def export(store, what: str, as_json: bool = False, progress=None) -> str:
+    """The text of `export labels|predictions|model` (CSV, or JSON with ``as_json``);
+    ``progress(done, total)`` is called after each chunk of predictions."""
     if what == "labels":
         rows = [{"key": r.key, "class": r.class_, "by": r.by, "at": r.at, "note": r.note or ""}
                 for r in store.current_labels()]
         return _table_text(rows, ["key", "class", "by", "at", "note"], as_json)
     if what == "predictions":
         ensure_fit(store)
-        return _predictions_text(store, as_json)
+        return _predictions_text(store, as_json, progress)
     if what == "model":
         clf = _model(ensure_fit(store))
         if clf is None:
@@ -443,14 +444,18 @@ def export(store, what: str, as_json: bool = False) -> str:
     raise UnknownExportError(f"cannot export {what!r}; choose labels, predictions or model")
 
 
-def _predictions_text(store, as_json: bool) -> str:
+def _predictions_text(store, as_json: bool, progress=None) -> str:
     classes = store.classes
     given = {r.candidate_id: r.class_ for r in store.current_labels()}
     columns = ["key", "predicted"] + [f"p_{c}" for c in classes] + ["p_low", "p_high", "entropy",
                                                                      "labelled", "label"]
     rows, meta_cols = [], []
     exact = ExactScores(store)
-    for chunk in map(exact, store.scores()):
+    total, done = store.counts()["candidates"], 0
+    for chunk in map(exact, store.scores(chunk_size=20_000)):
+        done += len(chunk.candidate_id)
+        if progress is not None:
+            progress(done, total)
         keys = store.keys(chunk.candidate_id)
         metas = store.metas(chunk.candidate_id)
         for i, cid in enumerate(chunk.candidate_id):

@@ -20,8 +20,8 @@ import struct
 from dataclasses import dataclass
 from typing import Optional
 
-from labelq.store.sql import (APPLICATION, CLAIM, DROP_EXPIRED_CLAIMS, HELD_BY_OTHERS, LIVE_LABEL, LIVE_SKIP,
-                              QUEUE_COLUMNS, queue_sql)
+from labelq.store.sql import (APPLICATION, CLAIM, DROP_EXPIRED_CLAIMS, HEAD_COUNT, HELD_BY_OTHERS,
+                              LIVE_LABEL, LIVE_SKIP, QUEUE_COLUMNS, QUEUE_HEAD_ROWS, queue_sql)
 from labelq.store.timestamps import utc_after, utc_now
 
 BUSY_TIMEOUT_SECONDS = 30  # as labelq.store.engine
@@ -101,12 +101,15 @@ class QuickReader:
             f" WHERE l.candidate_id = a.candidate_id AND {LIVE_LABEL}) < 2) LIMIT 1"
         ).fetchone() is not None
 
-    def queue(self, limit: int, holder: Optional[str]) -> list[dict]:
-        """The head of the last fit's queue, as `Store.queue` reads it (claims by others left out)."""
+    def queue(self, limit: int, holder: Optional[str]) -> Optional[list[dict]]:
+        """The head of the last fit's queue, as `Store.queue` reads it (claims by others left out);
+        None when it runs past the rows kept in `scores` (the full path reads on in the blocks)."""
         n_classes = self._db.execute("SELECT COUNT(*) FROM classes").fetchone()[0]
         unpack = struct.Struct(f"<{n_classes}d").unpack
         rows = self._db.execute(queue_sql(True), {"now": utc_now(), "holder": holder,
                                                   "limit": limit, "offset": 0}).fetchall()
+        if len(rows) < limit and self._db.execute(HEAD_COUNT).fetchone()[0] >= QUEUE_HEAD_ROWS:
+            return None  # the queue goes on in the score blocks: the full path reads them
         out = []
         for values in rows:
             row = dict(zip(QUEUE_COLUMNS, values))

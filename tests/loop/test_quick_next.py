@@ -129,3 +129,26 @@ def test_next_on_a_stale_store_takes_the_full_path(iris_store, tmp_path):
     assert "sqlalchemy" in out.split("LOADED")[1]
     doc = json.loads(out[: out.index("LOADED")])
     assert doc["fit"] == store.last_fit().id and key not in [r["key"] for r in doc["queue"]]
+
+
+def test_past_the_head_table_the_full_path_reads_on_in_the_score_blocks(iris_store, monkeypatch):
+    """Revision 0007 keeps ranks 1..QUEUE_HEAD_ROWS as rows of `scores` (here cut to 20); a
+    longer `next` gives up on the quick path and the full path continues the ranks from the score
+    blocks, equal to the blocks' own ranks, skipping labelled candidates (common practice: a
+    queue reads the same however it is stored)."""
+    import labelq.store.fits as fits
+    import labelq.store.quick as quick
+
+    monkeypatch.setattr(fits, "QUEUE_HEAD_ROWS", 20)
+    monkeypatch.setattr(quick, "QUEUE_HEAD_ROWS", 20)
+    store, truth = iris_store
+    head = actions.next_queue(store, 1).rows[0]
+    actions.label(store, head.key, truth[head.key], "tester")  # a refit writes 20 head rows
+    assert quick_next_queue(store.path, 10, None, "bob") is not None
+    assert quick_next_queue(store.path, 40, None, "bob") is None
+    rows = actions.next_queue(store, 40, holder="bob").rows
+    assert [r.rank for r in rows] == list(range(1, 41))
+    ranks = {int(c): int(r) for chunk in store.scores() for c, r in zip(chunk.candidate_id,
+                                                                          chunk.rank)}
+    assert all(ranks[r.candidate_id] == r.rank for r in rows)
+    assert [r.rank for r in store.queue(15, offset=25, exclude_claimed=False)] == list(range(26, 41))
