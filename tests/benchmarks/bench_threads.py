@@ -42,13 +42,25 @@ def main() -> None:
     for n in args.sizes:
         X, y = make_classification(n_samples=n, n_features=16, n_informative=8, random_state=1)
         times = {"engine": [], "one": [], "blas": []}
-        for _ in range(args.repeats):
+        def engine():
             threads.BLAS_THREAD_THRESHOLD = default_threshold
-            times["engine"].append(fit_once(X, y))
+            return fit_once(X, y)
+
+        def one():
+            threads.BLAS_THREAD_THRESHOLD = default_threshold
             with threadpool_limits(limits=1, user_api="blas"):
-                times["one"].append(fit_once(X, y))
+                return fit_once(X, y)
+
+        def blas():
             threads.BLAS_THREAD_THRESHOLD = 0
-            times["blas"].append(fit_once(X, y))
+            return fit_once(X, y)
+
+        sides = [("engine", engine), ("one", one), ("blas", blas)]
+        for r in range(args.repeats):
+            # the order turns each repeat: OpenBLAS's idle threads spin for a while after a
+            # threaded call, which slows whichever run comes next on a 2-core machine
+            for name, run in sides[r % 3:] + sides[:r % 3]:
+                times[name].append(run())
         threads.BLAS_THREAD_THRESHOLD = default_threshold
         med = {k: statistics.median(v) for k, v in times.items()}
         print(f"{n:>6} {med['engine']:>8.2f}s {med['one']:>8.2f}s {med['blas']:>8.2f}s "
