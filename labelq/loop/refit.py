@@ -235,7 +235,7 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     return store.record_fit(
         fit, state.ids, scores.proba, predicted, scores.p_top, p_low, p_high, scores.entropy,
         scores.margin, bald, scores.priority, queue.rank, snap, keep_models=settings.KEEP_MODELS,
-        reasons=queue.reasons.tolist(), exact=exact,
+        reasons=queue.reasons, exact=exact,
     )
 
 

@@ -495,8 +495,8 @@ class ExactScores:
             fit = self.store.last_fit()
             model = _model(fit)
             double = bool((fit.info or {}).get("double"))  # its exact rows are in double
-            self._parts = (model, double, model is not None and PolicySettings.from_dict(
-                fit.settings), *self.store.feature_scaling())
+            policy = None if model is None else PolicySettings.from_dict(fit.settings)
+            self._parts = (model, double, policy, *self.store.feature_scaling())
         model, double, policy, mean_, scale = self._parts
         if model is None:  # before any model: the stored uniform probabilities are exact
             return chunk

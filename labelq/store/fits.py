@@ -74,7 +74,7 @@ class FitsMixin(StoreCore):
             raise ValueError(f"scores must have {n} rows, one per candidate id")
         if len(rank) != n:
             raise ValueError(f"rank must have {n} entries, got {len(rank)}")
-        reasons = [None] * n if reasons is None else list(reasons)
+        reasons = np.full(n, None, dtype=object) if reasons is None else np.asarray(reasons, dtype=object)
         if len(reasons) != n:
             raise ValueError(f"reasons must have {n} entries, got {len(reasons)}")
         # the DERIVED lock: one refit writes at a time, label writes go on meanwhile (engine.py)
@@ -127,7 +127,7 @@ class FitsMixin(StoreCore):
                     np.asarray(p_top, dtype=np.float64)[head].tolist(),
                     *(column[head].astype(np.float64).tolist() for column in columns[2:]),
                     rank[head].tolist(),
-                    [reasons[i] for i in head.tolist()],
+                    reasons[head].tolist(),
                 ),
             )
             connection.execute(
