@@ -10,7 +10,8 @@ import numpy as np
 from scipy.linalg import cho_solve, solve_triangular
 from scipy.special import logsumexp, softmax
 
-from labelq.gp.posterior import Posterior, b_matrix, robust_cholesky, scaled_inverse
+from labelq.gp.posterior import (Posterior, b_matrix, class_factors, robust_cholesky,
+                                 scaled_inverse)
 
 TOLERANCE = 1e-10
 MAX_ITER = 100
@@ -101,7 +102,8 @@ def posterior_from_mode(K, Y, A, n_iter=0, warnings=()):
     Pi, E, M, log_det = _blocks(K, F)
     P = _class_precisions(E, M)
     lml = _objective(A, F, Y) - log_det
-    return Posterior(Y - Pi, P, float(lml), n_iter, {"a": A}, list(warnings))
+    return Posterior(Y - Pi, P, float(lml), n_iter, {"a": A}, list(warnings),
+                     class_factors=class_factors(P))
 
 
 def fit(K, Y, A0=None):

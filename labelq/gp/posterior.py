@@ -39,7 +39,12 @@ class Posterior:
     state: dict
     warnings: list = field(default_factory=list)
     factor: np.ndarray = None
+    class_factors: tuple = None
+    """Multi-class: per class (A_c (n, n) lower triangular, order_c (n,)) with
+    k^T P_c k = |A_c k[order_c]|^2 (`class_factors`), so a class variance costs one triangular
+    product like a binary one."""
     _factor32_cache: np.ndarray = field(default=None, repr=False, compare=False)
+    _class32_cache: tuple = field(default=None, repr=False, compare=False)
 
     @property
     def multiclass(self):
@@ -58,6 +63,56 @@ def _factor32(post):
     return post._factor32_cache
 
 
+def _class_factors32(post):
+    if post._class32_cache is None:
+        post._class32_cache = tuple(np.asfortranarray(A, dtype=np.float32)
+                                    for A, _ in post.class_factors)
+    return post._class32_cache
+
+
+def class_factors(precision):
+    """Per class (A_c, order_c) with P_c = R^T R in the order of a pivoted Cholesky
+    factorisation (LAPACK pstrf: P_c[o][:, o] = L L^T), written as the lower-triangular
+    A_c = J L^T J and order_c = o reversed (J reverses the order), so that
+    k^T P_c k = |L^T k[o]|^2 = |A_c k[order_c]|^2. P_c is positive semi-definite (a diagonal
+    block of (K + W^-1)^-1, GPML eq. 3.41-3.42); pstrf stops at its numerical rank r (LAPACK's
+    default tolerance, n u max_i (P_c)_ii) and the columns past r are dropped, which changes
+    k^T P_c k by at most that tolerance times |k|^2."""
+    out = []
+    for P in precision:
+        L, piv, rank, info = lapack.dpstrf(P, lower=1)
+        if info < 0:
+            raise ValueError(f"pivoted Cholesky failed (LAPACK dpstrf info {info})")
+        L = np.tril(L)
+        L[:, rank:] = 0.0
+        order = (piv.astype(np.int64) - 1)[::-1]
+        out.append((np.asfortranarray(L.T[::-1, ::-1]), np.ascontiguousarray(order)))
+    return tuple(out)
+
+
+def _class_variances(post, Ks, kss, precision, scratch=None):
+    """(m, C) k** - k^T P_c k per class through `class_factors`, double or mixed precision
+    (refining in double the rows at risk, as for binary models in `latent_moments`)."""
+    var = np.empty((Ks.shape[0], len(post.class_factors)))
+    if precision != "mixed":
+        for c, (A, order) in enumerate(post.class_factors):
+            var[:, c] = _trmm_variance(A, np.take(Ks, order, axis=1), kss, single=False)
+        return var
+    single = _class_factors32(post)
+    Ks32 = Ks.astype(np.float32)  # once; each class gathers its column order from it
+    if scratch is None:
+        scratch = np.empty(Ks.shape, dtype=np.float32)
+    K32 = scratch.reshape(-1)[:Ks.size].reshape(Ks.shape)
+    for c, (A, order) in enumerate(post.class_factors):
+        np.take(Ks32, order, axis=1, out=K32)
+        v, error = _trmm_variance(single[c], K32, kss, True, K32)
+        low = np.flatnonzero(error > MIXED_REFINE * v)
+        if low.size:
+            v[low] = _trmm_variance(A, np.take(Ks[low], order, axis=1), kss[low], single=False)
+        var[:, c] = v
+    return var
+
+
 def _trmm_variance(factor, Ks, kss, single, scratch=None):
     """kss - |A k*|^2 for the rows of Ks, with BLAS trmm in single or double precision; in
     single precision also an error estimate u |A k*| |k*| per row (u = 2^-24). `scratch`: an
@@ -66,7 +121,8 @@ def _trmm_variance(factor, Ks, kss, single, scratch=None):
         if scratch is None:
             scratch = np.empty(Ks.shape, dtype=np.float32)
         K32 = scratch.reshape(-1)[:Ks.size].reshape(Ks.shape)
-        np.copyto(K32, Ks, casting="same_kind")
+        if K32 is not Ks:  # (a caller may pass its single-precision rows as their own scratch)
+            np.copyto(K32, Ks, casting="same_kind")
         k_norm = np.sqrt(np.einsum("ij,ij->i", K32, K32))  # only for the error estimate
         V = blas.strmm(1.0, factor, K32.T, lower=1, overwrite_b=1)  # in place: K32.T is F-order
         # |v|^2 by squaring in place and numpy's pairwise summation along the contiguous axis:
@@ -111,7 +167,9 @@ def latent_moments(post, Ks, kss, precision="double", scratch=None):
         return mean, np.maximum(var, TINY_VARIANCE)
     if post.precision is None:
         raise ValueError("this posterior holds no predictive matrices (built for the optimiser)")
-    if post.multiclass:
+    if post.multiclass and post.class_factors is not None:
+        var = _class_variances(post, Ks, kss, precision, scratch)
+    elif post.multiclass:
         reduction = np.stack([((Ks @ M) * Ks).sum(1) for M in post.precision], axis=1)
         var = kss[:, None] - reduction
     else:

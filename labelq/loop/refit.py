@@ -154,7 +154,7 @@ def refit(store, state: PoolState, strategy: str, session_id=None, progress: Pro
     summary_rows = None
     if outcome is None:
         scores = uniform_scores(len(state.ids), len(classes))
-    elif _bounded(state, classes, strategy, unlabelled):
+    elif _bounded(state, classes, strategy, unlabelled, policy):
         # exact only where it can reach the head, plus the rows read elsewhere (labelled,
         # audit items, the stop set inside the summary sample): labelq.policy.bounded
         from labelq.policy.bounded import score_pool_bounded
@@ -258,17 +258,20 @@ def _intervals(scores, queue, large: bool):
     return low, high
 
 
-def _bounded(state, classes, strategy, unlabelled) -> bool:
+def _bounded(state, classes, strategy, unlabelled, policy) -> bool:
     """Whether this fit scores the pool with bounds (labelq.policy.bounded): a pool above
-    settings.EXACT_POOL_UP_TO, a binary model, a strategy whose priority the variance bounds
-    (margin, entropy, random; BALD, EPIG and softmax models would be scored exactly everywhere,
-    in double precision, slower than score_pool), and more unskipped unlabelled candidates than
-    the exact head (else the head would reach into the skipped ones)."""
+    settings.EXACT_POOL_UP_TO, a strategy whose priority the variance bounds bound (margin,
+    entropy, random; BALD and EPIG would be scored exactly everywhere, in double precision,
+    slower than score_pool), for a softmax model the bounded quadrature (`softmax_points`
+    None: the fixed Sobol rule has no error bound), and more unskipped unlabelled candidates
+    than the exact head (else the head would reach into the skipped ones)."""
     from labelq.policy.bounded import BOUNDED_STRATEGIES
 
-    if len(state.ids) <= settings.EXACT_POOL_UP_TO or len(classes) != 2:
+    if len(state.ids) <= settings.EXACT_POOL_UP_TO:
         return False
     if strategy not in BOUNDED_STRATEGIES:
+        return False
+    if len(classes) > 2 and policy.softmax_points is not None:
         return False
     unskipped = unlabelled & ~np.isin(state.ids, state.skipped)
     return int(unskipped.sum()) > settings.EXACT_HEAD

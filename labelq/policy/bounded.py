@@ -29,9 +29,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from labelq.acquire import priority
-from labelq.gp.bounds import bounded_prediction
-from labelq.policy.scoring import members, score_pool
+from scipy.special import expit
+
+from labelq.acquire import entropy_bits, margin, priority
+from labelq.gp.averaging import mix_predictions
+from labelq.gp.bounds import bounded_prediction, softmax_bounded_latent
+from labelq.gp.classifier import Prediction
+from labelq.gp.predictive import SOFTMAX_TOL, logistic_average
+from labelq.policy.scoring import PoolScores, members, score_pool
 from labelq.policy.settings import PolicySettings
 
 BOUNDED_STRATEGIES = ("entropy", "margin", "random")
@@ -105,6 +110,9 @@ def score_pool_bounded(model, X, settings: PolicySettings, strategy: str, unlabe
             rows.size and (rows.min() < 0 or rows.max() >= n_rows)):
         raise ValueError(f"exact_rows must be a 1-D array of row indices in [0, {n_rows})")
     ms, w = members(model)
+    if strategy in BOUNDED_STRATEGIES and ms and all(_softmax_laplace(m) for m in ms):
+        return _score_softmax(model, ms, w, X, settings, strategy, unlabelled, eligible,
+                              int(head), rows, n_jobs, full)
     if strategy not in BOUNDED_STRATEGIES or not all(_has_factor(m) for m in ms):
         scores = score_pool(in_double(model), X, settings, strategy, unlabelled, full=full,
                             n_jobs=n_jobs)
@@ -147,21 +155,31 @@ class _Exact:
             self.scores.priority[rows] = part.priority
         self.exact[rows] = True
 
-    def head(self, upper, eligible, head, rows):
+    def head(self, upper, eligible, head, rows, refine=None):
         """Score `rows` and the `head` eligible rows of largest `upper`, then the other eligible
         rows by decreasing `upper` (blocks of head, 2 head, ...) until none left can reach the
-        `head`-th largest exact priority among eligible rows."""
+        `head`-th largest exact priority among eligible rows.
+
+        refine : optional callable giving, for an array of rows, a tighter upper bound than
+            `upper` (costlier, so asked only of rows whose `upper` reaches the floor); `upper`
+            is lowered in place to it."""
         free = np.flatnonzero(eligible)
         if head == 0 or free.size <= head:
             self.score(np.concatenate([rows, free]) if head else rows)
             return
         first = free[np.argpartition(-upper[free], head - 1)[:head]]
         self.score(np.concatenate([rows, first]))
+        refined = np.zeros(upper.shape, dtype=bool)
         block = head
         while True:
             known = self.scores.priority[eligible & self.exact]  # holds `first`: >= head rows
             floor = np.partition(known, -head)[-head]
             reach = free[(upper[free] >= floor) & ~self.exact[free]]
+            if refine is not None and not refined[reach].all():
+                raw = reach[~refined[reach]]
+                upper[raw] = np.minimum(upper[raw], refine(raw))
+                refined[raw] = True
+                continue
             if reach.size == 0:
                 return
             self.score(reach[np.argsort(-upper[reach], kind="stable")[:block]])
@@ -182,6 +200,159 @@ def _priority_upper(strategy, bounds, w, link, seed):
         high = sum(wk * np.maximum(a, b) for wk, a, b in zip(w, at_zero, at_upper))
     nearest = np.clip(0.5, np.maximum(low - P_SLACK, 0.0), np.minimum(high + P_SLACK, 1.0))
     return priority(strategy, _two_columns(nearest), None, None, link, seed)
+
+
+def _score_softmax(model, ms, w, X, settings, strategy, unlabelled, eligible, head, rows,
+                   n_jobs, full):
+    """`score_pool_bounded` for a multi-class Laplace model (or a grid average of them)."""
+    link = model.likelihood_
+    latents = [softmax_bounded_latent(m, X, LEAD_ROWS, n_jobs=n_jobs) for m in ms]
+    bound = _SoftmaxBound(latents, w)
+    mean, var = mix_predictions([Prediction(None, mu, v) for mu, v in latents], w)[1:]
+    proba = sum(wk * moderated_softmax(mu, v) for wk, (mu, v) in zip(w, latents))
+    if strategy == "random":  # a seeded draw over the whole pool, whatever the model
+        prio = priority(strategy, proba, None, None, link, settings.seed)
+    else:
+        prio = bound.upper(strategy)
+    bald = np.full(len(prio), np.nan) if full else None  # exact rows fill theirs in
+    scores = PoolScores(proba, mean, var, prio, entropy_bits(proba), margin(proba), bald, link)
+    upper = prio.copy()
+    exact = np.zeros(len(prio), dtype=bool)
+    refine = None if strategy == "random" else (lambda r: bound.upper(strategy, r, True))
+    _Exact(model, X, settings, strategy, unlabelled, n_jobs, scores, exact, full).head(
+        upper, eligible, head, rows, refine)
+    if strategy != "random":
+        scores.priority[~exact] = upper[~exact]
+    return scores, exact
+
+
+def moderated_softmax(mean, var):
+    """softmax(mean_c / sqrt(1 + pi var_c / 8)) per row (N, C): the probit-scaled moderation of
+    MacKay (1992) applied class by class, an approximation (not a bound) of E[softmax(f)] that
+    large pools keep for rows scored with bounds; `export predictions` computes those rows
+    exactly."""
+    z = mean / np.sqrt(1.0 + (np.pi / 8.0) * var)
+    z = z - z.max(axis=1, keepdims=True)
+    e = np.exp(z)
+    return e / e.sum(axis=1, keepdims=True)
+
+
+SOFTMAX_SLACK = SOFTMAX_TOL + 1e-7
+"""Absolute allowance on each softmax probability of an exact row: the bound on the error of the
+quadrature that computes it (labelq.gp.predictive.SOFTMAX_TOL, for every row whose latent
+standard deviations are at most SOFTMAX_TABLE_SD) plus the logistic average's error and the
+rounding of the mixture (as P_SLACK)."""
+
+SOFTMAX_TABLE_SD = 16.0
+"""Latent standard deviation up to which every row of softmax_quadrature meets its tolerance
+(above it a row may take the fixed Sobol rule without a bound: such rows get no priority bound
+and are scored exactly)."""
+
+
+class _SoftmaxBound:
+    """Upper bounds of the margin and entropy priorities of a (mixture of) multi-class model(s)
+    from each member's exact latent means and upper bounds of its class variances.
+
+    For one member, fix a class k per row (the largest mixed mean). The softmax satisfies
+    p_k(f) >= 1 - sum_{j != k} sigma(f_j - f_k), since a_j / (1 + a_j) >= a_j / (1 + sum a) for
+    a_j = exp(f_j - f_k) >= 0, and p_j(f) = e^f_j / sum_c e^f_c <= sigma(f_j - f_k). Under the
+    model's predictive the class latents are independent normals (GPML Alg. 3.4, diagonal), so
+    f_j - f_k ~ N(mu_j - mu_k, v_j + v_k), and E[sigma(z)], z ~ N(a, s), is increasing in s when
+    a <= 0 and decreasing when a > 0 (heat equation, d/ds = E[sigma''(z)] / 2, with sigma'' odd
+    and negative on z > 0: the argument of the module docstring). With v_c at most the bound
+    U_c, E[sigma(f_j - f_k)] <= b_j = E[sigma(N(a, U_j + U_k))] for a <= 0 and sigma(a) for
+    a > 0. So the exact averaged probabilities obey p_k >= 1 - sum_j b_j and p_j <= b_j, the
+    quadrature's within SOFTMAX_SLACK of them, and the mixture's in the weighted sums.
+
+    The cheap form uses b_j <= min(1, exp(a + s / 2)) (sigma(z) <= e^z, and E e^z is the
+    lognormal mean); `upper(..., refined=True)` uses the logistic average itself (the binary
+    link's quadrature, within 1e-8).
+
+    From P_k >= lo and P_j <= hi_j: margin p_(1) - p_(2) >= lo - max_j hi_j when that is
+    positive (then k is the top class), so priority 1 / (1 + margin) <= 1 / (1 + lo - max hi);
+    entropy -sum p log p <= max_{x in [lo, 1]} (-x log x) + the most that C - 1 terms summing to
+    at most R = sum_j hi_j can give (-R log(R / (C - 1)), equal shares, while a share is below
+    1/e, where -x log x is increasing; (C - 1) / e beyond).
+    """
+
+    def __init__(self, latents, w):
+        self.latents, self.w = latents, np.asarray(w, dtype=float)
+        mixed = sum(wk * mu for wk, (mu, _) in zip(self.w, latents))
+        self.top = np.argmax(mixed, axis=1)
+        sd_max = np.sqrt(np.max([v.max(axis=1) for _, v in latents], axis=0))
+        self.wide = sd_max > SOFTMAX_TABLE_SD  # no quadrature error bound: scored exactly
+
+    def upper(self, strategy, rows=None, refined=False):
+        rows = np.arange(len(self.top)) if rows is None else np.asarray(rows)
+        top = self.top[rows]
+        n_classes = self.latents[0][0].shape[1]
+        lo = np.zeros(rows.size)
+        hi = np.zeros((rows.size, n_classes))
+        for wk, (mu, v) in zip(self.w, self.latents):
+            m, s = mu[rows], v[rows]
+            a = m - np.take_along_axis(m, top[:, None], 1)  # mu_j - mu_k
+            s = s + np.take_along_axis(s, top[:, None], 1)  # U_j + U_k
+            b = _pair_bound(a, s, refined)
+            b[np.arange(rows.size), top] = 0.0
+            low = _jensen_low(m, v[rows])
+            b = np.minimum(b, 1.0 - (low.sum(axis=1, keepdims=True) - low))
+            hi += wk * b
+            lo += wk * np.maximum(1.0 - b.sum(axis=1),
+                                  np.take_along_axis(low, top[:, None], 1)[:, 0])
+        lo -= SOFTMAX_SLACK
+        hi = np.minimum(hi + SOFTMAX_SLACK, 1.0)
+        hi[np.arange(rows.size), top] = -np.inf  # only the other classes count below
+        if strategy == "margin":
+            gap = np.maximum(lo - hi.max(axis=1), 0.0)
+            bound = 1.0 / (1.0 + gap)
+        else:  # entropy, in bits
+            share = np.clip(hi, 0.0, None)
+            share[np.arange(rows.size), top] = 0.0
+            rest = share.sum(axis=1)
+            each = rest / (n_classes - 1)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                rest_term = np.where(each <= np.exp(-1.0),
+                                     np.where(rest > 0, -rest * np.log(each), 0.0),
+                                     (n_classes - 1) * np.exp(-1.0))
+                lo_c = np.clip(lo, 0.0, 1.0)
+                top_term = np.where(lo_c >= np.exp(-1.0), -lo_c * np.log(lo_c), np.exp(-1.0))
+            bound = (top_term + rest_term) / np.log(2.0)
+        bound = bound * (1.0 + 1e-12) + 1e-12  # rounding of the exact figures
+        bound[self.wide[rows]] = np.inf
+        return bound
+
+
+def _jensen_low(mu, v):
+    """(r, C) lower bound of each averaged class probability: p_c = 1 / (1 + X) with
+    X = sum_{c' != c} exp(f_c' - f_c), convex in X, so E p_c >= 1 / (1 + E X) (Jensen), and
+    E exp(f_c' - f_c) = exp(mu_c' - mu_c + (v_c' + v_c) / 2) (the lognormal mean) only grows
+    with the variances, so their upper bounds v keep it a lower bound."""
+    d = mu[:, None, :] - mu[:, :, None] + 0.5 * (v[:, None, :] + v[:, :, None])
+    with np.errstate(over="ignore"):
+        e = np.exp(d)
+    idx = np.arange(mu.shape[1])
+    e[:, idx, idx] = 0.0
+    return 1.0 / (1.0 + e.sum(axis=2))
+
+
+def _pair_bound(a, s, refined):
+    """(r, C) upper bound of E[sigma(z)], z ~ N(a, v) for every v in [0, s] (see _SoftmaxBound)."""
+    if not refined:
+        with np.errstate(over="ignore"):
+            return np.minimum(np.exp(a + 0.5 * s), 1.0)
+    out = expit(a)  # a > 0: the value at v = 0
+    neg = a <= 0.0
+    if neg.any():
+        out[neg] = np.minimum(logistic_average(a[neg], s[neg]) + P_SLACK, 1.0)
+    return out
+
+
+def _softmax_laplace(m):
+    """True for a fitted multi-class GPClassifier (softmax Laplace) averaging by the bounded
+    quadrature (softmax_points None: the fixed Sobol rule has no error bound)."""
+    post = getattr(m, "posterior_", None)
+    return (post is not None and post.multiclass and "a" in post.state
+            and post.precision is not None and getattr(m, "softmax_points", None) is None)
 
 
 def _two_columns(p):

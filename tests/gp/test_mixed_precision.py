@@ -78,3 +78,41 @@ def test_unknown_precision_is_a_value_error():
     model = GPClassifier(optimize=False, lengthscale=5.0).fit(X, y)
     with pytest.raises(ValueError, match="precision"):
         model.predict_pool(pool[:3], precision="half")
+
+
+def _wine():
+    # scikit-learn's bundled wine data: three classes
+    from sklearn.datasets import load_wine
+
+    X, y = load_wine(return_X_y=True)
+    return X[::2], y[::2], X[1::2]
+
+
+def _three_classes():
+    X, y = make_classification(n_samples=4400, n_features=10, n_informative=6, n_classes=3,
+                               random_state=5)
+    return X[:500], y[:500], X[500:]
+
+
+@pytest.mark.parametrize("data", [_wine, _three_classes], ids=["wine", "three-classes"])
+def test_multi_class_variances_through_the_class_factors(data):
+    # Source: GPML Alg. 3.4 line 9 (diagonal), k** - k^T P_c k formed by one GEMM per class as
+    # before the class factors (the reference here): the triangular form in double precision
+    # equals it to rounding, and the mixed path stays within the binary path's measured bounds
+    # (not a published figure; see test_mixed_precision_stays_close_to_double).
+    from dataclasses import replace
+
+    X, y, pool = data()
+    model = GPClassifier(random_state=0).fit(X, y)
+    post = model.posterior_
+    assert post.class_factors is not None
+    Xs = model._transform(pool)
+    Ks, kss = model.kernel_(Xs, model._Xs), model.kernel_.diag(Xs)
+    ref_mean, ref_var = gp_posterior.latent_moments(replace(post, class_factors=None), Ks, kss)
+    mean, var = gp_posterior.latent_moments(post, Ks, kss, "double")
+    np.testing.assert_array_equal(mean, ref_mean)
+    np.testing.assert_allclose(var, ref_var, rtol=1e-9, atol=1e-12 * kss.max())
+    mixed = model.predict_pool(pool, precision="mixed")
+    np.testing.assert_allclose(mixed.var, ref_var, rtol=2e-2)
+    exact = model._proba_from_latent(ref_mean, ref_var)
+    assert np.abs(mixed.proba - exact).max() < 2e-4

@@ -4,7 +4,7 @@ probabilities equal those of a full double-precision computation, and a large po
 estimated from the seeded sample within its stated standard errors.
 
 Pools: scikit-learn's bundled breast cancer data, a scikit-learn make_classification pool, and the
-invented orchard demo as a binary pool (export grade against the rest). The reference is computed
+invented orchard demo as a binary pool (export grade against the rest) and with its three grades. The reference is computed
 here from the fit's own stored model with every member predicting in double precision
 (`GPClassifier.predict_pool(precision="double")`, exact by construction) and ranked by the policy's
 own `rank_pool`, as a fit without bounds would rank it.
@@ -47,7 +47,15 @@ def _orchard():
     return X, np.where(grade == "export", "export", "lower"), ["export", "lower"]
 
 
-POOLS = {"breast-cancer": _cancer, "synthetic": _synthetic, "orchard-binary": _orchard}
+def _orchard_grades():
+    rows, truth = generate(3000)
+    X = np.array([[r[f] for f in FEATURES] for r in rows], dtype=float)
+    grade = np.array([truth[r["key"]] for r in rows])
+    return X, grade, sorted(set(grade))
+
+
+POOLS = {"breast-cancer": _cancer, "synthetic": _synthetic, "orchard-binary": _orchard,
+         "orchard-grades": _orchard_grades}  # the last one three classes: the softmax bound
 
 
 @pytest.fixture(params=sorted(POOLS))

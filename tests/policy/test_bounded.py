@@ -10,14 +10,15 @@ head and its figures must be the same.
 """
 import numpy as np
 import pytest
-from sklearn.datasets import load_breast_cancer, make_classification
+from sklearn.datasets import load_breast_cancer, load_iris, make_classification
 from sklearn.gaussian_process import GaussianProcessClassifier
 from sklearn.gaussian_process.kernels import RBF, ConstantKernel
 
 from labelq.acquire import STRATEGIES, rank_order
 from labelq.demo import FEATURES, generate
 from labelq.gp import GPClassifier
-from labelq.gp.bounds import bounded_prediction, leading_factor, pseudo_observation_scales
+from labelq.gp.bounds import (bounded_prediction, leading_factor, pseudo_observation_scales,
+                               softmax_bounded_latent, softmax_lead)
 from labelq.gp.hyperparameters import median_distance
 from labelq.loop.settings import POLICY
 from labelq.policy import fit_labels, score_pool
@@ -124,12 +125,13 @@ def test_head_and_its_figures_equal_a_full_double_precision_scoring(case, strate
         np.testing.assert_allclose(getattr(scores, name)[exact], getattr(ref, name)[exact],
                                    rtol=0, atol=1e-6, err_msg=name)
     loose = ~exact
-    if strategy not in BOUNDED_STRATEGIES or model.n_classes_ > 2:
+    if strategy not in BOUNDED_STRATEGIES:
         assert not loose.any()  # documented fallback: every row exact
         return
     # Source: labelq.gp.bounds (conditioning on fewer pseudo-observations never lowers a
-    # variance) and the monotone move of a binary averaged probability towards 1/2 (module
-    # docstring of labelq.policy.bounded): the documented bounds of rows that are not exact
+    # variance) and, for binary models, the monotone move of an averaged probability towards
+    # 1/2, for softmax models the inequalities of labelq.policy.bounded._SoftmaxBound: the
+    # documented bounds of rows that are not exact
     np.testing.assert_allclose(scores.mean[loose], ref.mean[loose], rtol=1e-9, atol=1e-9)
     assert (scores.var[loose] >= ref.var[loose]).all()
     assert (scores.priority[loose] >= ref.priority[loose]).all()
@@ -237,8 +239,86 @@ def test_full_bound_matches_scikit_learn_and_partial_bounds_exceed_it():
     assert np.median(partial.var / ref_var) > 1.01  # 20 of 285 rows leave some variance
 
 
-def test_multi_class_models_have_no_bound():
-    # Source: documented - the bound is for binary posteriors (GPML Alg. 3.2 / 3.6) only.
+def test_multi_class_models_take_the_softmax_bound():
+    # Source: documented - bounded_prediction is for binary posteriors (GPML Alg. 3.2 / 3.6);
+    # softmax Laplace models (GPML Alg. 3.4) have softmax_bounded_latent.
     X, _, _, model = _case("orchard-learnt")
     with pytest.raises(ValueError, match="binary"):
         bounded_prediction(model, X[:5], 10)
+    with pytest.raises(ValueError, match="multi-class"):
+        softmax_lead(_case("breast-cancer-learnt")[3], 10)
+
+
+def _iris_model(n_labels=60):
+    # scikit-learn's bundled iris data (three classes), fixed hyperparameters
+    X, y = load_iris(return_X_y=True)
+    X = _standardise(X)
+    rows = np.random.default_rng(0).permutation(len(y))[:n_labels]
+    model = GPClassifier(optimize=False, lengthscale=1.5, signal_variance=4.0)
+    return X, model.fit(X[rows], y[rows])
+
+
+@pytest.mark.parametrize("m", [0, 5, 20])
+def test_softmax_bound_is_the_variance_given_the_first_points(m):
+    # Source: GPML Alg. 3.4 (multi-class Laplace predictive, diagonal) on a model refitted by
+    # hand: a dense covariance K** - Q^T (K_S + W_S^-1)^-1 Q from the W_i blocks (GPML eq.
+    # 3.38) of the first m points alone, which conditioning on fewer observations makes an
+    # upper bound of the model's own variance.
+    X, model = _iris_model()
+    lead = softmax_lead(model, m)
+    mean, var = softmax_bounded_latent(model, X, lead=lead)
+    exact_mean, exact_var = model.latent(X)
+    np.testing.assert_allclose(mean, exact_mean, rtol=1e-10, atol=1e-10)
+    assert (var >= exact_var).all()
+    K = model.kernel_(model._Xs)
+    pi = np.exp(K @ model.posterior_.state["a"])
+    pi /= pi.sum(1, keepdims=True)
+    S = lead.order[:m]
+    C = pi.shape[1]
+    W = np.zeros((C * m, C * m))  # class-major blocks: (c, i)
+    for i, p in enumerate(pi[S]):
+        block = np.diag(p) - np.outer(p, p)
+        W[i::m, i::m] = block
+    KS = np.kron(np.eye(C), K[np.ix_(S, S)])
+    ks = model.kernel_(model._transform(X), model._Xs[S])
+    kss = model.kernel_.diag(model._transform(X))
+    # (K_S + W^-1)^-1 = W^1/2 (I + W^1/2 K_S W^1/2)^-1 W^1/2 with W's symmetric square root
+    vals, vecs = np.linalg.eigh(W) if m else (np.zeros(0), np.zeros((0, 0)))
+    root = (vecs * np.sqrt(np.clip(vals, 0, None))) @ vecs.T
+    middle = root @ np.linalg.solve(np.eye(C * m) + root @ KS @ root, root)
+    for c in range(C):
+        Q = ks @ np.kron(np.eye(C)[c:c + 1], np.eye(m))  # (N, C m): k_S in class c's slots
+        dense = kss - np.einsum("ij,jk,ik->i", Q, middle, Q)
+        np.testing.assert_allclose(var[:, c], dense, rtol=1e-7, atol=1e-8)
+
+
+def test_softmax_bound_with_every_point_is_the_exact_variance():
+    # Source: GPML Alg. 3.4 - with all n points the bound is the model's own variance (up to
+    # the documented rounding allowance)
+    X, model = _iris_model()
+    _, var = softmax_bounded_latent(model, X, len(model.codes_))
+    _, exact_var = model.latent(X)
+    np.testing.assert_allclose(var, exact_var, rtol=1e-6, atol=1e-8)
+
+
+@pytest.mark.parametrize("strategy", ["margin", "entropy"])
+@pytest.mark.parametrize("refined", [False, True])
+def test_softmax_priority_bounds_hold_at_random_latents(strategy, refined):
+    # Source: the inequalities of labelq.policy.bounded._SoftmaxBound, checked against the
+    # exact averaged probabilities (labelq.gp.predictive.softmax_quadrature) at random means
+    # and variances, each variance anywhere below its bound, and for a mixture of two members.
+    from labelq.acquire import priority
+    from labelq.gp.predictive import softmax_quadrature
+    from labelq.policy.bounded import _SoftmaxBound
+
+    rng = np.random.default_rng(3)
+    N, C = 4000, 4
+    mus = [rng.normal(0, 2.5, (N, C)) for _ in range(2)]
+    ups = [rng.uniform(0.01, 6.0, (N, C)) for _ in range(2)]
+    trues = [u * rng.uniform(0, 1, (N, C)) ** 2 for u in ups]
+    w = np.array([0.3, 0.7])
+    bound = _SoftmaxBound(list(zip(mus, ups)), w).upper(strategy, refined=refined)
+    proba = sum(wk * softmax_quadrature(mu, v).proba for wk, mu, v in zip(w, mus, trues))
+    exact = priority(strategy, proba / proba.sum(1, keepdims=True), None, None, None)
+    assert (bound >= exact).all()
+    assert (bound < exact + 0.5).mean() > 0.3  # not a vacuous bound
