@@ -87,7 +87,7 @@ def rounding_allowance(kss, k_norm, scale_norm, n):
     return 4.0 * n * _UNIT_ROUNDOFF * (2.0 * np.sqrt(n) * scale_norm * k_norm * v_norm + kss)
 
 
-def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
+def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None, proba=True):
     """`Prediction(proba, mean, var)` for the rows of X (N, d) under a fitted binary
     GPClassifier, with an upper bound in place of the latent variance.
 
@@ -97,6 +97,8 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
         variance of `predict_pool(precision="double")`, which m = n gives to rounding.
     proba : the model's averaged class probabilities (N, 2) at that mean and variance.
     lead : a `LeadingFactor` of this model with m rows, computed when not given.
+    proba : False leaves the probabilities out (None): the averaged probability is the larger
+        part of the cost of a row.
     chunk_size, n_jobs : as for `GPClassifier.predict_pool` (bounded memory, worker threads;
         give BLAS one thread per worker).
     """
@@ -132,7 +134,7 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
         k_norm = np.sqrt(kss * train_trace)  # |k_x| <= (k(x, x) tr K)^1/2 (Cauchy-Schwarz)
         var = kss - np.einsum("ij,ij->i", V, V) + rounding_allowance(kss, k_norm, scale_norm, n)
         var = np.maximum(var, TINY_VARIANCE)
-        return model._proba_from_latent(mean, var), mean, var
+        return (model._proba_from_latent(mean, var) if proba else None), mean, var
 
     starts = range(0, len(X), chunk)
     if int(n_jobs) > 1 and len(starts) > 1:
@@ -142,8 +144,9 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None):
         parts = [work(start) for start in starts]
     if not parts:
         empty = np.zeros(0)
-        return Prediction(np.zeros((0, 2)), empty, empty.copy())
-    return Prediction(*(np.concatenate([p[i] for p in parts]) for i in range(3)))
+        return Prediction(np.zeros((0, 2)) if proba else None, empty, empty.copy())
+    return Prediction(np.concatenate([p[0] for p in parts]) if proba else None,
+                      *(np.concatenate([p[i] for p in parts]) for i in (1, 2)))
 
 
 # ------------------------------------------------------------------------------ softmax

@@ -322,3 +322,25 @@ def test_softmax_priority_bounds_hold_at_random_latents(strategy, refined):
     exact = priority(strategy, proba / proba.sum(1, keepdims=True), None, None, None)
     assert (bound >= exact).all()
     assert (bound < exact + 0.5).mean() > 0.3  # not a vacuous bound
+
+
+def test_cheap_logistic_end_lies_between_one_half_and_the_average():
+    # Source: E[sigma(f)] >= Phi(t) sigma(mean - t sd) for mean >= 0 (sigma >= 0, Markov-type
+    # argument in labelq.policy.bounded._priority_upper), against scipy.integrate.quad of the
+    # logistic-normal integral (GPML eq. 3.25).
+    from scipy import integrate
+    from scipy.special import expit
+    from scipy.stats import norm
+
+    from labelq.policy.bounded import _toward_half
+
+    rng = np.random.default_rng(5)
+    mean = np.concatenate([rng.normal(0, 4, 60), [0.0, 1e-9, -1e-9]])
+    var = np.concatenate([rng.uniform(0, 30, 60), [1.0, 2.0, 3.0]])
+    point = _toward_half(mean, var)
+    for m, v, p in zip(mean, var, point):
+        exact = integrate.quad(lambda f: expit(f) * norm.pdf(f, m, np.sqrt(v)),
+                               m - 12 * np.sqrt(v), m + 12 * np.sqrt(v), epsabs=1e-12)[0]
+        assert min(0.5, exact) - 1e-12 <= p <= max(0.5, exact) + 1e-12
+    # and it is useful: well away from 1/2 where the average is
+    assert abs(_toward_half(np.array([6.0]), np.array([0.25]))[0] - 0.5) > 0.45
