@@ -344,3 +344,17 @@ def test_cheap_logistic_end_lies_between_one_half_and_the_average():
         assert min(0.5, exact) - 1e-12 <= p <= max(0.5, exact) + 1e-12
     # and it is useful: well away from 1/2 where the average is
     assert abs(_toward_half(np.array([6.0]), np.array([0.25]))[0] - 0.5) > 0.45
+
+
+def test_scaled_probits_stay_below_the_logistic():
+    # Source: the inequality sigma(x) - 1/2 >= a (Phi(b x) - 1/2) on x >= 0 that the cheap
+    # bound rests on (labelq.policy.bounded._SCALED_PROBITS), on a grid finer than the one the
+    # constants were found on, and its tail: past x = 80 sigma - 1/2 is within e^-80 of 1/2.
+    from scipy.special import expit, ndtr
+
+    from labelq.policy.bounded import _SCALED_PROBITS
+
+    x = np.concatenate([np.geomspace(1e-9, 1.0, 200_001), np.linspace(1.0, 80.0, 3_000_001)])
+    for a, b in _SCALED_PROBITS:
+        assert a < 1.0
+        assert (expit(x) - 0.5 - a * (ndtr(b * x) - 0.5) >= 0).all(), (a, b)
