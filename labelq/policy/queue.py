@@ -58,7 +58,12 @@ def rank_pool(model, X, ids, scores: PoolScores, settings: PolicySettings, strat
         head = _cold_head(X, rows[~skipped], np.flatnonzero(~unlabelled), settings, head_size,
                           reasons)
     else:
-        head = _spread_head(model, X, ids, scores, strategy, rows, skipped, batch_size,
+        # the batch reads only the shortlist: pass those rows, in queue order (select_batch's
+        # own ranking of them is the same order), not the whole pool
+        top = order[:max(settings.batch_shortlist, batch_size)]
+        skipped_rows = np.zeros(n, dtype=bool)
+        skipped_rows[rows[skipped]] = True
+        head = _spread_head(model, X, ids, scores, strategy, top, skipped_rows[top], batch_size,
                             settings.batch_shortlist)
         for t, r in enumerate(head):
             why = strategy_reason(strategy, scores.proba[r], classes)

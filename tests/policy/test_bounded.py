@@ -325,9 +325,8 @@ def test_softmax_priority_bounds_hold_at_random_latents(strategy, refined):
 
 
 def test_cheap_logistic_end_lies_between_one_half_and_the_average():
-    # Source: E[sigma(f)] >= Phi(t) sigma(mean - t sd) for mean >= 0 (sigma >= 0, Markov-type
-    # argument in labelq.policy.bounded._priority_upper), against scipy.integrate.quad of the
-    # logistic-normal integral (GPML eq. 3.25).
+    # Source: the scaled-probit minorant argument of labelq.policy.bounded._toward_half,
+    # against scipy.integrate.quad of the logistic-normal integral (GPML eq. 3.25).
     from scipy import integrate
     from scipy.special import expit
     from scipy.stats import norm
