@@ -16,12 +16,14 @@ filled cells in the file. A filled cell that is not a finite number is an error 
 ``missing`` says. Anything wrong with the file raises :class:`InputError` with a one-line message
 that names the file, the line (where the record starts) and the column and value involved.
 
-Large files are read in chunks of ``chunk_rows`` records: each chunk's cells are placed in one
-NumPy object array and each feature column is converted by NumPy with ``float`` semantics
-(surrounding whitespace is allowed, and so are the forms ``float`` itself accepts such as "1_000"
-or non-ASCII digits); only when a conversion fails is the column walked cell by cell to find the
-blank cells and the first bad value. A column's role, once decided, never changes, so the file is
-read once.
+Large files are read in chunks of ``chunk_rows`` records. A chunk of plain lines (no quotes,
+the header's number of commas on every line: :mod:`labelq.ingest_fast`) is split with NumPy and
+its plain decimals converted by a vectorised parser that gives exactly the double ``float``
+gives; any other chunk is read by the csv module into one NumPy object array. Every other cell
+of a feature column is converted by NumPy with ``float`` semantics (surrounding whitespace is
+allowed, and so are the forms ``float`` itself accepts such as "1_000" or non-ASCII digits); only
+when a conversion fails is the column walked cell by cell to find the blank cells and the first
+bad value. A column's role, once decided, never changes, so the file is read once.
 """
 
 from __future__ import annotations
@@ -38,6 +40,7 @@ from typing import Callable, Iterator, Optional, Sequence
 import numpy as np
 
 from labelq.errors import LabelqError
+from labelq.ingest_fast import read_plain
 
 __all__ = [
     "MISSING_TREATMENTS",
@@ -112,11 +115,29 @@ class CandidateTable:
 
 @dataclass
 class _Chunk:
-    """Up to ``chunk_rows`` records: cells ``(m, n_columns)`` and each record's first line."""
+    """Up to ``chunk_rows`` records read by the csv module: cells ``(m, n_columns)`` and each
+    record's first line. :class:`labelq.ingest_fast.PlainChunk` offers the same methods."""
 
     cells: np.ndarray
     lines: list[int]
     bytes_done: int
+
+    def texts(self, j: int) -> list[str]:
+        """Column j's cells."""
+        return self.cells[:, j].tolist()
+
+    def column(self, j: int) -> np.ndarray:
+        """Column j's cells as an object array of str."""
+        return self.cells[:, j]
+
+    def first_filled(self, j: int) -> Optional[tuple[int, str]]:
+        """``(row, cell)`` of column j's first cell that is not blank, or None."""
+        return next(((row, cell) for row, cell in enumerate(self.cells[:, j]) if cell.strip()),
+                    None)
+
+    def numbers(self, columns: list[int], careful) -> dict[int, np.ndarray]:
+        """Columns already converted: none (the plan converts each with ``careful``)."""
+        return {}
 
 
 def _show(value: str) -> str:
@@ -237,25 +258,74 @@ def _open(name: str):
         raise InputError(f"{name}: cannot be read (permission denied)") from None
 
 
-def _read_chunks(raw, name: str, chunk_rows: int) -> Iterator:
-    """Yield ``(line, header_fields)``, then :class:`_Chunk` objects of the header's width.
+class _Lines:
+    """The file's physical lines, handed out one at a time, decoded, to the csv reader
+    (:meth:`decoded`) or as blocks of raw bytes to the plain reader (:meth:`take`); ``count`` is
+    how many have been handed out. A block the plain reader refuses is given back and goes to
+    the csv reader next."""
 
-    Lines are split on b"\\n" and decoded one at a time, so the csv reader's ``line_num`` is
-    the physical line number and a decoding failure is pinned to its line. Blank lines are
-    skipped.
+    def __init__(self, raw):
+        self.raw = raw
+        self.count = 0
+        self._held: list[bytes] = []
+
+    def decoded(self) -> Iterator[str]:
+        """Each line as text (the first without a byte-order mark); UnicodeDecodeError for a
+        line that is not UTF-8, ``count`` being the lines before it."""
+        encoding = "utf-8-sig"
+        while True:
+            line = self._held.pop() if self._held else self.raw.readline()
+            if not line:
+                return
+            text = line.decode(encoding)
+            encoding = "utf-8"
+            self.count += 1
+            yield text
+
+    def take(self, n: int) -> list[bytes]:
+        """Up to ``n`` raw lines (fewer at the end of the file), not yet counted."""
+        return list(itertools.islice(self.raw, n))
+
+    def give_back(self, block: list[bytes]):
+        self._held = block[::-1]
+
+
+def _read_chunks(raw, name: str, chunk_rows: int) -> Iterator:
+    """Yield ``(line, header_fields)``, then chunks of ``chunk_rows`` records of the header's
+    width (fewer at the end).
+
+    Each chunk is first offered to :func:`labelq.ingest_fast.read_plain` as a block of
+    ``chunk_rows`` raw lines; a block that is not plain is read with the csv module instead
+    (:class:`_Chunk`). There lines are split on b"\\n" and decoded one at a time, so the line
+    count is the physical line number and a decoding failure is pinned to its line. Blank lines
+    are skipped.
     """
-    first = raw.readline()
-    try:
-        lines = itertools.chain([first.decode("utf-8-sig")], map(bytes.decode, raw))
-    except UnicodeDecodeError:
-        raise InputError(f"{name}, line 1: not valid UTF-8 text") from None
-    reader = csv.reader(lines, strict=False)
-    records = _records(reader, name)
+    lines = _Lines(raw)
+    records = _records(csv.reader(lines.decoded(), strict=False), lines, name)
     header = next(records, None)
     if header is None:
         raise InputError(f"{name}: no header (the file is empty or blank)")
     yield header
     width = len(header[1])
+    while True:
+        block = lines.take(chunk_rows)
+        if not block:
+            return
+        chunk = read_plain(block, width, lines.count + 1, len(block) < chunk_rows,
+                           csv.field_size_limit(), raw.tell())
+        if chunk is not None:
+            lines.count += len(block)
+        else:
+            lines.give_back(block)
+            chunk = _careful_chunk(records, name, width, chunk_rows, raw)
+            if chunk is None:
+                return
+        yield chunk
+
+
+def _careful_chunk(records, name: str, width: int, chunk_rows: int, raw) -> Optional[_Chunk]:
+    """The next ``chunk_rows`` records (fewer at the end, None after it) read by the csv
+    module, each checked for the header's width."""
     cells: list[list[str]] = []
     starts: list[int] = []
     for start, fields in records:
@@ -264,27 +334,26 @@ def _read_chunks(raw, name: str, chunk_rows: int) -> Iterator:
         cells.append(fields)
         starts.append(start)
         if len(cells) == chunk_rows:
-            yield _Chunk(_as_cells(cells, width), starts, raw.tell())
-            cells, starts = [], []
-    if cells:
-        yield _Chunk(_as_cells(cells, width), starts, raw.tell())
+            break
+    if not cells:
+        return None
+    return _Chunk(_as_cells(cells, width), starts, raw.tell())
 
 
-def _records(reader, name: str) -> Iterator[tuple[int, list[str]]]:
+def _records(reader, lines: _Lines, name: str) -> Iterator[tuple[int, list[str]]]:
     """Yield ``(first_line, fields)`` for each non-blank record, with errors as InputError."""
-    end = 0
     while True:
+        before = lines.count
         try:
             fields = next(reader)
         except StopIteration:
             return
         except UnicodeDecodeError:
-            raise InputError(f"{name}, line {reader.line_num + 1}: not valid UTF-8 text") from None
+            raise InputError(f"{name}, line {lines.count + 1}: not valid UTF-8 text") from None
         except csv.Error as exc:
-            raise InputError(f"{name}, line {end + 1}: {_csv_problem(exc)}") from None
-        start, end = end + 1, reader.line_num
+            raise InputError(f"{name}, line {before + 1}: {_csv_problem(exc)}") from None
         if fields:
-            yield start, fields
+            yield before + 1, fields
 
 
 def _csv_problem(exc: csv.Error) -> str:
@@ -425,19 +494,19 @@ class _Plan:
             self._decide(chunk)
         self._add_keys(chunk)
         if self.labels_index is not None:
-            self.labels.extend(cell.strip() or None for cell in chunk.cells[:, self.labels_index])
+            self.labels.extend(cell.strip() or None for cell in chunk.texts(self.labels_index))
         self._add_numbers(chunk)
         for j, texts in self.texts.items():
-            texts.extend(chunk.cells[:, j].tolist())
+            texts.extend(chunk.texts(j))
         self.n_rows += len(chunk.lines)
 
     def _decide(self, chunk: _Chunk):
         """Give each pending column whose first filled cell is in this chunk its role."""
         for j in list(self.pending):
-            row = next((r for r, cell in enumerate(chunk.cells[:, j]) if cell.strip()), None)
-            if row is None:
+            found = chunk.first_filled(j)
+            if found is None:
                 continue
-            cell = chunk.cells[row, j]
+            row, cell = found
             self.first_filled[j] = (chunk.lines[row], cell)
             self.pending.remove(j)
             if _is_number(cell):
@@ -448,23 +517,38 @@ class _Plan:
                     self.first_blank[j] = self.first_line
 
     def _add_keys(self, chunk: _Chunk):
-        for line, cell in zip(chunk.lines, chunk.cells[:, self.id_index]):
+        cells = chunk.texts(self.id_index)
+        keys = [cell.strip() for cell in cells]
+        fresh = dict(zip(keys, chunk.lines))
+        if len(fresh) < len(keys) or "" in fresh or not self.key_lines.keys().isdisjoint(fresh):
+            self._raise_for_keys(chunk.lines, cells)
+        self.key_lines.update(fresh)
+        self.keys.extend(keys)
+
+    def _raise_for_keys(self, lines, cells: list[str]):
+        """Raise for the first of these rows whose id is empty or seen before (one is)."""
+        seen: dict[str, int] = {}
+        for line, cell in zip(lines, cells):
             key = cell.strip()
             if not key:
                 self._raise_cell(line, self.id_index, cell, "empty id")
-            first = self.key_lines.setdefault(key, line)
+            first = self.key_lines.get(key) or seen.setdefault(key, line)
             if first != line:
                 raise InputError(
                     f"{self.name}, lines {first} and {line}, column "
                     f"{_show(self.columns[self.id_index])}: duplicate id {_show(key)}"
                 )
-            self.keys.append(key)
+        raise AssertionError("no empty or repeated id among the rows")
 
     def _add_numbers(self, chunk: _Chunk):
         """Convert the chunk's feature cells; raise for the earliest cell that breaks a rule."""
         bad: list[tuple[int, int, str, str]] = []
+        converted = chunk.numbers(self.features, _to_floats)
         for j in self.features:
-            values, blank, problem = _to_floats(chunk.cells[:, j])
+            if j in converted:
+                self.floats[j].append(converted[j])
+                continue
+            values, blank, problem = _to_floats(chunk.column(j))
             if blank is not None:
                 self.first_blank.setdefault(j, chunk.lines[blank])
             if problem is None:
