@@ -23,6 +23,7 @@ from labelq.gp import load_model
 from labelq.loop import actions, reports, settings
 from labelq.loop.refit import ensure_fit, load_state
 from labelq.policy import PolicySettings, rank_pool, score_pool
+from labelq.policy import bounded
 from labelq.policy.bounded import in_double
 from labelq.store import Store
 
@@ -65,6 +66,8 @@ def bounded_store(request, tmp_path, monkeypatch):
     monkeypatch.setattr(settings, "EXACT_POOL_UP_TO", 0)
     monkeypatch.setattr(settings, "EXACT_HEAD", 300)  # the spread batch reads 300 (shortlist)
     monkeypatch.setattr(settings, "SUMMARY_SAMPLE", 100)
+    # refine bounds even on 30 labels, where most rows would otherwise be scored at once
+    monkeypatch.setattr(bounded, "REFINE_FROM", 0)
     X, y, classes = POOLS[request.param]()
     store = Store.create(tmp_path / "pool.db", classes)
     keys = [f"c{i:05d}" for i in range(len(X))]
