@@ -107,7 +107,10 @@ def ensure_fit(store, strategy: Optional[str] = None, session_id=None, progress:
     wanted = wanted or settings.DEFAULT_STRATEGY
     if is_current(store, last) and asked_strategy(last) == wanted:
         return last
-    refit(store, load_state(store), wanted, session_id=session_id, progress=progress)
+    # `last` is the store's last fit (nothing was written since): refit need not decode its
+    # model again
+    refit(store, load_state(store), wanted, session_id=session_id, progress=progress,
+          previous=last)
     return store.last_fit()
 
 
