@@ -189,9 +189,12 @@ def next_(
     if quick is not None:
         render_queue(quick[0], quick[1], json)
         return
-    with open_store(db) as store, render.progress_bar("refitting") as update:
-        queue = actions.next_queue(store, n, strategy_name(strategy), holder=holder,
-                                   progress=lambda stage, d, t: update(d, t, stage))
+    with open_store(db) as store:
+        # the table is printed after the bar (on stderr) has gone: printing to stdout while it
+        # is live left the bar's last line in front of the table in a terminal
+        with render.progress_bar("refitting") as update:
+            queue = actions.next_queue(store, n, strategy_name(strategy), holder=holder,
+                                       progress=lambda stage, d, t: update(d, t, stage))
         render_queue(store.classes, queue, json)
 
 
@@ -269,16 +272,17 @@ def label(
     json: JsonOption = False,
 ):
     """Record a label, refit, re-rank and print the new head of the queue."""
-    with open_store(db) as store, render.progress_bar("refitting") as update:
+    with open_store(db) as store:
         who = person(by)
-        actions.label(store, key, class_, who, note=note, relabel=relabel, resolve=resolve,
-                      strategy=strategy_name(strategy),
-                      progress=lambda stage, d, t: update(d, t, stage))
+        with render.progress_bar("refitting") as update:  # gone before anything is printed
+            actions.label(store, key, class_, who, note=note, relabel=relabel, resolve=resolve,
+                          strategy=strategy_name(strategy),
+                          progress=lambda stage, d, t: update(d, t, stage))
+            queue = actions.next_queue(store, n, strategy_name(strategy), holder=who)
         disputed = store.is_disputed(key)
         from labelq.store.classes import resolve_class
 
         class_ = resolve_class(class_, store.classes)  # the stored name, as the store matched it
-        queue = actions.next_queue(store, n, strategy_name(strategy), holder=who)
         if not json:
             render.console().print(f"Labelled {key} as {class_}"
                                    + (" (dispute settled)." if resolve else "."), markup=False)
