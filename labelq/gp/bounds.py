@@ -87,6 +87,42 @@ def rounding_allowance(kss, k_norm, scale_norm, n):
     return 4.0 * n * _UNIT_ROUNDOFF * (2.0 * np.sqrt(n) * scale_norm * k_norm * v_norm + kss)
 
 
+def _pool_shape(model, X, chunk_size, n_jobs):
+    """(X as an array, training size n, rows per chunk), with the pool's shape checked now and
+    its values chunk by chunk; chunks as for `GPClassifier.predict_pool` by default."""
+    X = np.asarray(X)
+    model._transform(X[:0] if X.ndim == 2 else X)
+    n = model._Xs.shape[0]
+    if chunk_size is None:
+        chunk_size = min(65536, max(256, POOL_CHUNK_BYTES // (12 * n)))
+    if int(chunk_size) < 1 or int(n_jobs) < 1:
+        raise ValueError(f"chunk_size and n_jobs must be >= 1, got {chunk_size!r}, {n_jobs!r}")
+    return X, n, max(1, min(int(chunk_size), len(X)))
+
+
+def _map_chunks(model, X, train, chunk, n_jobs, rows):
+    """[rows(K(x, train) (c, n), k(x, x) (c,)) for each chunk of c <= chunk rows of X], the
+    chunks standardised one at a time (no second copy of a large pool) and, with n_jobs > 1,
+    spread over worker threads, each with one kernel buffer for all its chunks."""
+    local = threading.local()
+
+    def work(start):
+        if not hasattr(local, "kernel"):
+            local.kernel = np.empty((chunk, train.shape[0]))
+        try:
+            Xc = model._transform(X[start:start + chunk])
+        except ValueError:
+            model._transform(X)  # the same message, with the row counted from the pool's start
+            raise
+        return rows(model.kernel_(Xc, train, out=local.kernel[:len(Xc)]), model.kernel_.diag(Xc))
+
+    starts = range(0, len(X), chunk)
+    if int(n_jobs) > 1 and len(starts) > 1:
+        with ThreadPoolExecutor(min(int(n_jobs), len(starts))) as pool:
+            return list(pool.map(work, starts))
+    return [work(start) for start in starts]
+
+
 def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None, proba=True):
     """`Prediction(proba, mean, var)` for the rows of X (N, d) under a fitted binary
     GPClassifier, with an upper bound in place of the latent variance.
@@ -104,31 +140,14 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None, proba=
     """
     lead = leading_factor(model, m) if lead is None else lead
     m = lead.factor.shape[0]
-    X = np.asarray(X)
-    model._transform(X[:0] if X.ndim == 2 else X)  # shapes now, values chunk by chunk
-    n = model._Xs.shape[0]
-    if chunk_size is None:
-        chunk_size = min(65536, max(256, POOL_CHUNK_BYTES // (12 * n)))
-    if int(chunk_size) < 1 or int(n_jobs) < 1:
-        raise ValueError(f"chunk_size and n_jobs must be >= 1, got {chunk_size!r}, {n_jobs!r}")
-    chunk = max(1, min(int(chunk_size), len(X)))
+    X, n, chunk = _pool_shape(model, X, chunk_size, n_jobs)
     train = model._Xs[lead.order]  # the leading rows first: their kernel columns are a slice
     weights = model.posterior_.weights[lead.order]
     scale_norm = float(np.linalg.norm(lead.scales))
     train_trace = float(model.kernel_.diag(train).sum())
     factor_t = np.ascontiguousarray(lead.factor.T)
-    local = threading.local()
 
-    def work(start):
-        if not hasattr(local, "kernel"):  # one buffer per worker serves all its chunks
-            local.kernel = np.empty((chunk, n))
-        try:  # standardised chunk by chunk: no second copy of a large pool
-            Xc = model._transform(X[start:start + chunk])
-        except ValueError:
-            model._transform(X)  # the same message, with the row counted from the pool's start
-            raise
-        Ks = model.kernel_(Xc, train, out=local.kernel[:len(Xc)])
-        kss = model.kernel_.diag(Xc)
+    def rows(Ks, kss):
         mean = Ks @ weights
         V = Ks[:, :m] @ factor_t  # the first m components of v, one row per pool row
         k_norm = np.sqrt(kss * train_trace)  # |k_x| <= (k(x, x) tr K)^1/2 (Cauchy-Schwarz)
@@ -136,12 +155,7 @@ def bounded_prediction(model, X, m, chunk_size=None, n_jobs=1, lead=None, proba=
         var = np.maximum(var, TINY_VARIANCE)
         return (model._proba_from_latent(mean, var) if proba else None), mean, var
 
-    starts = range(0, len(X), chunk)
-    if int(n_jobs) > 1 and len(starts) > 1:
-        with ThreadPoolExecutor(min(int(n_jobs), len(starts))) as pool:
-            parts = list(pool.map(work, starts))
-    else:
-        parts = [work(start) for start in starts]
+    parts = _map_chunks(model, X, train, chunk, n_jobs, rows)
     if not parts:
         empty = np.zeros(0)
         return Prediction(np.zeros((0, 2)) if proba else None, empty, empty.copy())
@@ -246,30 +260,13 @@ def softmax_bounded_latent(model, X, m=None, chunk_size=None, n_jobs=1, lead=Non
     if lead is None:
         lead = softmax_lead(model, 64 if m is None else m)
     n_classes, m = lead.maps.shape[0], lead.maps.shape[1]
-    X = np.asarray(X)
-    model._transform(X[:0] if X.ndim == 2 else X)
-    n = model._Xs.shape[0]
-    if chunk_size is None:
-        chunk_size = min(65536, max(256, POOL_CHUNK_BYTES // (12 * n)))
-    if int(chunk_size) < 1 or int(n_jobs) < 1:
-        raise ValueError(f"chunk_size and n_jobs must be >= 1, got {chunk_size!r}, {n_jobs!r}")
-    chunk = max(1, min(int(chunk_size), len(X)))
+    X, n, chunk = _pool_shape(model, X, chunk_size, n_jobs)
     train = model._Xs[lead.order]
     weights = model.posterior_.weights[lead.order]
     train_trace = float(model.kernel_.diag(train).sum())
     maps = [np.ascontiguousarray(lead.maps[c]) for c in range(n_classes)]
-    local = threading.local()
 
-    def work(start):
-        if not hasattr(local, "kernel"):
-            local.kernel = np.empty((chunk, n))
-        try:
-            Xc = model._transform(X[start:start + chunk])
-        except ValueError:
-            model._transform(X)
-            raise
-        Ks = model.kernel_(Xc, train, out=local.kernel[:len(Xc)])
-        kss = model.kernel_.diag(Xc)
+    def rows(Ks, kss):
         mean = Ks @ weights
         lead_k = Ks[:, :m]
         slack = softmax_rounding_allowance(kss, kss * train_trace, n, n_classes)
@@ -279,12 +276,7 @@ def softmax_bounded_latent(model, X, m=None, chunk_size=None, n_jobs=1, lead=Non
             var[:, c] = kss - np.einsum("ij,ij->i", V, V) + slack
         return mean, np.maximum(var, TINY_VARIANCE)
 
-    starts = range(0, len(X), chunk)
-    if int(n_jobs) > 1 and len(starts) > 1:
-        with ThreadPoolExecutor(min(int(n_jobs), len(starts))) as pool:
-            parts = list(pool.map(work, starts))
-    else:
-        parts = [work(start) for start in starts]
+    parts = _map_chunks(model, X, train, chunk, n_jobs, rows)
     if not parts:
         return np.zeros((0, n_classes)), np.zeros((0, n_classes))
     return tuple(np.concatenate([p[i] for p in parts]) for i in range(2))
